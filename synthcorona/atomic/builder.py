@@ -1,0 +1,443 @@
+"""Table builder: CHIANTI (through fiasco) → one emissivity table file (lines + continuum).
+
+For every ion of the chosen elements, on a (log T, log n_e) grid, this computes
+
+* line emissivities per unit element abundance, ``f_ion N_j A_ji ΔE / n_e``
+  [erg cm3 s-1], the CHIANTI contribution function of Young et al. (2016, J. Phys.
+  B 49, 074009, their eq. 3) without the abundance factor, from
+  ``fiasco.Ion.contribution_function`` (level populations from the
+  collisional-radiative model, two-ion model where CHIANTI has the data);
+* continua per element: free-free (fiasco ``Ion.free_free``, Gaunt factors of
+  Itoh et al. 2000 / Sutherland 1998), free-bound (``Ion.free_bound``, Verner &
+  Yakovlev 1995 cross-sections for ground states, Karzas & Latter 1961 otherwise)
+  and two-photon (``Ion.two_photon``) on a fixed log-uniform energy grid;
+* ionization fractions from CHIANTI's default equilibrium file (``chianti.ioneq``).
+
+Speed: the proton/electron density ratio (Young et al. 2003, ApJS 144, 135, eq. 7),
+which fiasco recomputes for every ion and is the slowest step of a plain
+contribution-function call, is computed once per temperature grid and handed to
+every ion. Each ion's result is written to its own file in a work directory, so
+an interrupted build resumes where it stopped, and ions run in parallel worker
+processes (``jobs``).
+
+Line selection (documented threshold ``line_threshold`` = *f*): at every grid point
+(T, n_e), the weakest lines of an ion whose summed emissivity is below *f* times
+that ion's total line emissivity are candidates for dropping; a line is kept if it
+is not a candidate at *some* grid point. Hence at every grid point the dropped
+lines of every ion carry less than *f* of that ion's line emission, and for any
+abundances the dropped lines carry less than *f* of the total line emission of the
+plasma; in any wavelength window holding at least a fraction *w* of the total line
+emission they carry less than *f*/*w* of the window's emission (1 % for the default
+*f* = 1e-5 and windows with w >= 1e-3).
+"""
+from __future__ import annotations
+
+import datetime as _dt
+import hashlib
+import json
+import logging
+import os
+import pathlib
+import time
+from concurrent.futures import ProcessPoolExecutor, as_completed
+
+import numpy as np
+
+from ..validation import InputError
+from . import locate
+from ..tablefile import write_table
+
+__all__ = ["BuildSettings", "build_table", "default_elements", "DEFAULT_LOGT", "DEFAULT_LOG_DENSITY",
+           "default_energy_grid"]
+
+log = logging.getLogger(__name__)
+
+#: Default temperature grid: log10 T = 4.5 ... 8.5 step 0.05 (81 points).
+DEFAULT_LOGT = np.round(np.arange(4.5, 8.5 + 1e-9, 0.05), 6)
+#: Default electron densities: log10 n_e = 8 ... 12 cm^-3.
+DEFAULT_LOG_DENSITY = np.array([8.0, 9.0, 10.0, 11.0, 12.0])
+#: Elements kept by default: photospheric number abundance >= this (relative to H).
+DEFAULT_MIN_ABUNDANCE = 1e-7
+BUILDER_VERSION = "2"
+#: Lines longward of this (1 eV photons, the low end of the continuum grid) are not stored.
+MAX_WAVELENGTH = 12398.419843320026
+#: Window width, largest dropped share and significance of the window test (see select_lines_windowed).
+WINDOW_WIDTH = 10.0
+WINDOW_TARGET = 0.005
+WINDOW_SIGNIFICANCE = 0.01
+#: Grid points where an ion's total line emissivity is below this fraction of its maximum are not
+#: considered when selecting lines, and its line emissivities there are stored as zero.
+ION_PRESENCE = 1e-5
+_SYMBOLS = ["H", "He", "Li", "Be", "B", "C", "N", "O", "F", "Ne", "Na", "Mg", "Al", "Si", "P", "S", "Cl",
+            "Ar", "K", "Ca", "Sc", "Ti", "V", "Cr", "Mn", "Fe", "Co", "Ni", "Cu", "Zn"]
+
+
+def default_energy_grid(n: int = 1000) -> np.ndarray:
+    """Continuum energy grid in keV: ``n`` points log-uniform from 1 eV to 50 keV."""
+    return np.geomspace(1e-3, 50.0, n)
+
+
+def default_elements(chianti_root: pathlib.Path, min_abundance: float = DEFAULT_MIN_ABUNDANCE) -> list[str]:
+    """Elements whose solar photospheric abundance (the CHIANTI tree's
+    ``sun_photospheric_2021_asplund.abund``, Asplund et al. 2021, A&A 653, A141) is
+    >= ``min_abundance`` relative to H."""
+    path = pathlib.Path(chianti_root) / "abundance" / "sun_photospheric_2021_asplund.abund"
+    if not path.is_file():
+        cands = sorted((pathlib.Path(chianti_root) / "abundance").glob("*photospheric*.abund"))
+        if not cands:
+            raise locate.ChiantiNotFoundError(f"no photospheric abundance file in {chianti_root}/abundance")
+        path = cands[-1]
+    out = []
+    for line in path.read_text(errors="replace").splitlines():
+        parts = line.split()
+        if not parts or parts[0].strip() == "-1":
+            break
+        z, logab = int(parts[0]), float(parts[1])
+        if z <= 30 and 10 ** (logab - 12.0) >= min_abundance:
+            out.append(_SYMBOLS[z - 1])
+    return out
+
+
+class BuildSettings:
+    """Grids and choices of one table build (everything that determines the result)."""
+
+    def __init__(self, logT=None, log_density=None, energy=None, elements=None, line_threshold=1e-3,
+                 ions=None):
+        self.logT = np.asarray(DEFAULT_LOGT if logT is None else logT, dtype=float)
+        self.log_density = np.asarray(DEFAULT_LOG_DENSITY if log_density is None else log_density, dtype=float)
+        self.energy = np.asarray(default_energy_grid() if energy is None else energy, dtype=float)
+        self.elements = list(elements) if elements is not None else None
+        self.line_threshold = float(line_threshold)
+        self.ions = list(ions) if ions is not None else None
+        for name, arr in (("logT", self.logT), ("log_density", self.log_density), ("energy", self.energy)):
+            if arr.ndim != 1 or arr.size < 2 or not np.all(np.diff(arr) > 0):
+                raise InputError(f"{name} grid must be 1-D, strictly increasing, with >= 2 points")
+        if not (0 <= self.line_threshold < 0.1):
+            raise InputError(f"line_threshold={line_threshold} is outside the valid range [0, 0.1)")
+
+    def signature(self, h5: pathlib.Path) -> str:
+        """Hash of everything that determines per-ion results (names the work directory)."""
+        h = hashlib.sha256()
+        for arr in (self.logT, self.log_density, self.energy):
+            h.update(np.ascontiguousarray(arr).tobytes())
+        h.update(f"{h5.name}|{BUILDER_VERSION}".encode())  # line selection happens at assembly
+        return h.hexdigest()[:16]
+
+
+# --------------------------------------------------------------------------- worker side
+
+def _install_pe_cache(temperature_k: np.ndarray, ratio: np.ndarray) -> None:
+    """Make fiasco reuse one proton/electron ratio for this temperature grid (see module doc)."""
+    import astropy.units as u
+    import fiasco.ions as fions
+
+    orig = getattr(fions, "_synthcorona_original_pe", fions.proton_electron_ratio)
+    fions._synthcorona_original_pe = orig
+
+    def cached(temperature, **kwargs):
+        t = np.atleast_1d(temperature.to_value(u.K))
+        if t.shape == temperature_k.shape and np.allclose(t, temperature_k, rtol=1e-10, atol=0):
+            return u.Quantity(ratio)
+        return orig(temperature, **kwargs)
+
+    fions.proton_electron_ratio = cached
+
+
+def select_lines(eps: np.ndarray, fraction: float) -> np.ndarray:
+    """Boolean mask of lines kept by the per-point cumulative rule (see module doc).
+
+    Parameters
+    ----------
+    eps : ndarray (n_lines, n_points)
+        Line emissivities of one ion at the grid points considered.
+    fraction : float
+        Largest share of the ion's line emission the dropped lines may carry at any point.
+    """
+    if eps.shape[0] == 0 or fraction <= 0:
+        return np.ones(eps.shape[0], dtype=bool)
+    flat = eps.reshape(eps.shape[0], -1)
+    order = np.argsort(flat, axis=0, kind="stable")
+    srt = np.take_along_axis(flat, order, axis=0)
+    cums = np.cumsum(srt, axis=0)
+    droppable_sorted = cums < fraction * cums[-1]
+    droppable = np.empty_like(droppable_sorted)
+    np.put_along_axis(droppable, order, droppable_sorted, axis=0)
+    return ~np.all(droppable, axis=1)
+
+
+def window_sums(wavelength: np.ndarray, eps: np.ndarray, keep: np.ndarray, width: float = WINDOW_WIDTH):
+    """Total and dropped emissivity in the windows [λ_i, λ_i + width) starting at each line.
+
+    ``wavelength`` must be sorted ascending; ``eps`` is (n_lines, n_points).
+    Returns (lo, hi, total, dropped) with total/dropped of shape (n_lines, n_points).
+    """
+    zero = np.zeros((1,) + eps.shape[1:])
+    c_all = np.concatenate([zero, np.cumsum(eps, axis=0)])
+    c_drop = np.concatenate([zero, np.cumsum(eps * (~keep)[:, None], axis=0)])
+    hi = np.searchsorted(wavelength, wavelength + width, side="left")
+    lo = np.arange(wavelength.size)
+    return lo, hi, c_all[hi] - c_all[lo], c_drop[hi] - c_drop[lo]
+
+
+def select_lines_windowed(wavelength: np.ndarray, eps: np.ndarray, fraction: float,
+                          window_fraction: float = WINDOW_TARGET, significance: float = WINDOW_SIGNIFICANCE,
+                          presence: float = ION_PRESENCE) -> np.ndarray:
+    """Lines of one ion to keep: the cumulative rule, then repaired window by window.
+
+    1. Only grid points where the ion's total line emissivity is at least ``presence``
+       times its maximum over the grid are considered (elsewhere the ion is absent).
+    2. :func:`select_lines` with ``fraction``.
+    3. For every window [λ_i, λ_i + 10 Å) and grid point where the window holds at least
+       ``significance`` of the ion's line emission, the strongest dropped lines are
+       restored until the dropped lines carry at most ``window_fraction`` of the window.
+
+    Parameters
+    ----------
+    wavelength : ndarray (n_lines,) in Angstrom
+    eps : ndarray (n_lines, n_density, n_T) in erg cm3 s-1
+    """
+    n = wavelength.size
+    if n == 0 or fraction <= 0:
+        return np.ones(n, dtype=bool)
+    flat = eps.reshape(n, -1)
+    tot = flat.sum(axis=0)
+    if tot.max() <= 0:
+        return np.zeros(n, dtype=bool)
+    present = tot >= presence * tot.max()
+    e = flat[:, present].astype(np.float64)
+    tot = tot[present]
+    order = np.argsort(wavelength, kind="stable")
+    w, e = wavelength[order], e[order]
+    keep = select_lines(e, fraction)
+    for _ in range(10000):
+        lo, hi, w_tot, w_drop = window_sums(w, e, keep)
+        bad = (w_tot >= significance * tot[None, :]) & (w_drop > window_fraction * w_tot)
+        if not bad.any():
+            break
+        for j, p in zip(*np.nonzero(bad)):
+            seg = np.arange(lo[j], hi[j])
+            cand = seg[~keep[seg]]
+            if cand.size:
+                keep[cand[np.argmax(e[cand, p])]] = True
+    out = np.zeros(n, dtype=bool)
+    out[order] = keep
+    return out
+
+
+def compute_ion(ion_name: str, h5: str, logT: np.ndarray, log_density: np.ndarray, energy: np.ndarray,
+                pe_ratio: np.ndarray, line_threshold: float) -> dict:
+    """Lines and continua of one ion (worker function; imports fiasco).
+
+    Returns a dict of numpy arrays: ``wavelength`` (Å), ``upper``, ``lower``,
+    ``observed``, ``emissivity`` (n_lines, n_density, n_T) erg cm3 s-1 per unit
+    abundance; ``ff``, ``fb`` (n_T, n_E) and ``tp`` (n_density, n_T, n_E) in
+    erg cm3 s-1 keV-1 per unit abundance; ``Z``, ``stage``, ``mass_amu``, ``ip_ev``.
+    """
+    import warnings
+    import astropy.units as u
+    import fiasco
+    from fiasco.util.exceptions import MissingDatasetException, MissingIonError
+
+    fiasco.log.setLevel("ERROR")
+    warnings.filterwarnings("ignore")
+    T = 10 ** logT * u.K
+    _install_pe_cache(T.to_value(u.K), pe_ratio)
+    dens = 10 ** log_density * u.cm ** -3
+    ion = fiasco.Ion(ion_name, T, hdf5_dbase_root=h5, abundance=1.0)
+    nT, nn, nE = logT.size, log_density.size, energy.size
+    out = {"Z": ion.atomic_number, "stage": ion.ionization_stage, "mass_amu": ion.mass.to_value(u.u)}
+    try:
+        out["ip_ev"] = ion.ionization_potential.to_value(u.eV)
+    except (MissingDatasetException, KeyError, AttributeError):
+        out["ip_ev"] = np.nan
+    try:
+        frac = ion.ionization_fraction.value
+    except MissingDatasetException:
+        frac = np.zeros(nT)
+    # ---- lines
+    wl = np.zeros(0)
+    eps = np.zeros((0, nn, nT))
+    up = lo = obs = np.zeros(0, dtype=np.int32)
+    has_lines = all(ion._has_dataset(d) for d in ("elvlc", "wgfa", "scups")) and np.any(frac > 0)
+    if has_lines:
+        g = ion.contribution_function(dens).to_value(u.erg * u.cm ** 3 / u.s)  # (T, n, lines)
+        tr = ion.transitions
+        bb = tr.is_bound_bound
+        wl = tr.wavelength[bb].to_value(u.AA)
+        up = tr.upper_level[bb].astype(np.int32)
+        lo = tr.lower_level[bb].astype(np.int32)
+        obs = tr.is_observed[bb].astype(np.int8)
+        eps = np.transpose(g, (2, 1, 0))
+        eps = np.where(np.isfinite(eps) & (eps > 0), eps, 0.0)
+        keep = (wl < MAX_WAVELENGTH) & np.any(eps > 0, axis=(1, 2))
+        wl, up, lo, obs, eps = wl[keep], up[keep], lo[keep], obs[keep], eps[keep].astype(np.float32)
+    out.update(wavelength=wl, upper=up, lower=lo, observed=obs, emissivity=eps, n_all_lines=int(has_lines and bb.sum()))
+    # ---- continua, per keV: eps_E = eps_lambda * lambda / E
+    wave = (energy * u.keV).to(u.AA, equivalencies=u.spectral())
+    jac = (wave.to_value(u.AA) / energy)  # Angstrom per keV
+    unit_l = u.erg * u.cm ** 3 / u.s / u.AA
+    ff = np.zeros((nT, nE))
+    fb = np.zeros((nT, nE))
+    tp = np.zeros((nn, nT, nE))
+    if ion.charge_state >= 1 and np.any(frac > 0):
+        ff = ion.free_free(wave).to_value(unit_l) * frac[:, None] * jac
+    try:
+        nxt = ion.next_ion()
+        f_next = nxt.ionization_fraction.value
+        if np.any(f_next > 0) and ion._has_dataset("fblvl"):
+            fb = ion.free_bound(wave).to_value(unit_l) * f_next[:, None] * jac
+    except (MissingDatasetException, MissingIonError, KeyError, ValueError, IndexError) as exc:
+        log.debug("no free-bound for %s: %s", ion_name, exc)
+    if (ion.hydrogenic or ion.helium_like) and np.any(frac > 0):
+        for i, d in enumerate(dens):
+            try:
+                t2 = ion.two_photon(wave, d).to_value(unit_l)
+            except MissingDatasetException:
+                break
+            t2 = t2.reshape(nT, nE)
+            tp[i] = t2 * frac[:, None] * jac
+    for arr in (ff, fb, tp):
+        arr[~np.isfinite(arr)] = 0.0
+        np.clip(arr, 0.0, None, out=arr)
+    out.update(ff=ff, fb=fb, tp=tp)
+    return out
+
+
+def _run_one(args):
+    name, h5, logT, logn, energy, pe, thr, path = args
+    t0 = time.perf_counter()
+    res = compute_ion(name, h5, logT, logn, energy, pe, thr)
+    res["seconds"] = time.perf_counter() - t0
+    tmp = path.with_suffix(".partial.npz")
+    np.savez(tmp, **res)
+    os.replace(tmp, path)
+    return name, res["seconds"]
+
+
+def _ion_list(h5: pathlib.Path, elements: list[str]) -> list[str]:
+    import fiasco
+
+    wanted = {e.lower() for e in elements}
+    out = []
+    for name in fiasco.list_ions(h5):  # e.g. "Fe 12"
+        sym, stage = name.split()
+        if sym.lower() in wanted:
+            out.append(f"{sym.lower()}_{int(stage)}")
+    return out
+
+
+def proton_electron_ratio(h5: pathlib.Path, logT: np.ndarray, work: pathlib.Path) -> np.ndarray:
+    """n_p/n_e on the grid (fiasco, Young et al. 2003 eq. 7), computed once and cached in ``work``."""
+    path = work / "proton_electron_ratio.npy"
+    if path.exists():
+        return np.load(path)
+    import astropy.units as u
+    import fiasco
+
+    fiasco.log.setLevel("ERROR")
+    ratio = fiasco.proton_electron_ratio(10 ** logT * u.K, hdf5_dbase_root=h5).value
+    np.save(path, ratio)
+    return ratio
+
+
+def build_table(output, chianti=None, settings: BuildSettings | None = None, jobs: int = 1,
+                work_dir=None, progress: bool = True, **kwargs) -> pathlib.Path:
+    """Build an emissivity table file from a CHIANTI database (resumable, parallel).
+
+    Parameters
+    ----------
+    output : path
+        netCDF file to write (see ``docs/table_format.md``).
+    chianti : path, optional
+        ASCII CHIANTI tree or ``.tar.xz`` (else ``SYNTHCORONA_CHIANTI``, else fiasco's configuration).
+    settings : BuildSettings, optional
+        Grids, elements, line threshold (keyword arguments of BuildSettings are accepted directly).
+    jobs : int
+        Number of worker processes (>= 1).
+    work_dir : path, optional
+        Where per-ion results are kept (default: the user cache); rerunning with
+        the same settings resumes from them.
+    progress : bool
+        Show a progress bar (ions done, time left).
+    """
+    import fiasco
+    from tqdm import tqdm
+
+    if settings is None:
+        settings = BuildSettings(**kwargs)
+    elif kwargs:
+        raise InputError(f"give either settings or keyword grids, not both: {sorted(kwargs)}")
+    if int(jobs) < 1:
+        raise InputError(f"jobs={jobs} is outside the valid range [1, {os.cpu_count()}]")
+    fiasco.log.setLevel("ERROR")
+    src = locate.find_chianti(chianti)
+    elements = settings.elements or default_elements(src.root)
+    bad = [e for e in elements if e not in _SYMBOLS]
+    if bad:
+        raise InputError(f"elements={bad}: unknown element symbol(s); valid: {', '.join(_SYMBOLS)}")
+    h5 = locate.ensure_hdf5(src, elements, progress=False)
+    ions = settings.ions or _ion_list(h5, elements)
+    work = pathlib.Path(work_dir) if work_dir else locate.cache_dir() / "build" / settings.signature(h5)
+    (work / "ions").mkdir(parents=True, exist_ok=True)
+    pe = proton_electron_ratio(h5, settings.logT, work)
+    todo, done = [], 0
+    for name in ions:
+        path = work / "ions" / f"{name}.npz"
+        if path.exists():
+            done += 1
+        else:
+            todo.append((name, str(h5), settings.logT, settings.log_density, settings.energy, pe,
+                         settings.line_threshold, path))
+    timings = {}
+    bar = tqdm(total=len(ions), initial=done, unit="ion", desc="ions", disable=not progress)
+    if int(jobs) == 1:
+        for args in todo:
+            name, sec = _run_one(args)
+            timings[name] = sec
+            bar.update(1)
+    else:
+        with ProcessPoolExecutor(max_workers=int(jobs)) as pool:
+            futs = [pool.submit(_run_one, a) for a in todo]
+            for f in as_completed(futs):
+                name, sec = f.result()
+                timings[name] = sec
+                bar.update(1)
+    bar.close()
+    results = {}
+    n_all = n_kept = 0
+    for name in ions:
+        r = dict(np.load(work / "ions" / f"{name}.npz"))
+        eps = r["emissivity"].astype(np.float64)
+        keep = select_lines_windowed(r["wavelength"], eps, settings.line_threshold)
+        n_all += keep.size
+        n_kept += int(keep.sum())
+        eps = eps[keep]
+        if eps.size:
+            tot = eps.sum(axis=0)
+            eps[:, tot < ION_PRESENCE * tot.max()] = 0.0
+        for key in ("wavelength", "upper", "lower", "observed"):
+            r[key] = r[key][keep]
+        r["emissivity"] = eps
+        results[name] = r
+    attrs = {
+        "chianti_version": src.version,
+        "chianti_origin": src.origin,
+        "chianti_provenance": src.provenance_note or "no PROVENANCE.md found beside the database",
+        "fiasco_version": fiasco.__version__,
+        "ioneq": "chianti (CHIANTI default equilibrium file chianti.ioneq of the database above)",
+        "proton_electron_ratio": "fiasco.proton_electron_ratio (Young et al. 2003 eq. 7), fiasco default "
+                                 "abundance file, summed over the elements of this table, computed once per grid",
+        "line_threshold": settings.line_threshold,
+        "line_selection": (f"synthcorona.atomic.builder.select_lines_windowed: per ion, dropped lines carry < "
+                           f"line_threshold of the ion's line emission at every grid point where the ion is present "
+                           f"(total >= {ION_PRESENCE:g} of its maximum; elsewhere stored as 0), and < {WINDOW_TARGET:g} "
+                           f"of any {WINDOW_WIDTH:g} A window holding >= {WINDOW_SIGNIFICANCE:g} of the ion's line "
+                           f"emission; lines longward of {MAX_WAVELENGTH:.1f} A are not stored"),
+        "lines_kept": f"{n_kept} of {n_all}",
+        "build_date": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+        "builder_version": BUILDER_VERSION,
+        "elements": " ".join(elements),
+        "ions": " ".join(ions),
+        "build_seconds_per_ion": json.dumps({k: round(v, 2) for k, v in timings.items()}),
+    }
+    return write_table(output, results, settings, elements, attrs)

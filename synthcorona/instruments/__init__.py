@@ -1,0 +1,1 @@
+"""Instrument models: optics, filters, detectors and telescope responses."""

@@ -1,0 +1,184 @@
+"""The emissivity-table file: packing, content hash, writing and verified reading.
+
+Layout in ``docs/table_format.md``. Large arrays are stored as 16-bit integers of
+log10(value) (linear packing of the log between the variable's smallest kept and
+largest value), zlib-compressed; zero (and values below ``RELATIVE_FLOOR`` times
+the variable's maximum) is stored as the fill value -32768. The decode error is at
+most half a packing step, recorded per variable in ``attrs["storage_error"]``.
+
+The content hash is the SHA-256 of the raw stored integers, the packing constants
+and the coordinate/float variables, so a file whose numbers were altered, or that
+was truncated, fails verification on load.
+"""
+from __future__ import annotations
+
+import hashlib
+import json
+import pathlib
+
+import numpy as np
+import xarray as xr
+
+from .validation import InputError
+
+__all__ = ["TableFileError", "PACKED_VARS", "write_table", "read_table", "content_hash"]
+
+#: Variables stored as packed log10 integers.
+PACKED_VARS = ("line_emissivity", "cont_ff", "cont_fb", "cont_2p")
+FILL = np.int16(-32768)
+QMAX = 32767
+#: Values below this fraction of a variable's maximum are stored as zero.
+RELATIVE_FLOOR = 1e-40
+FORMAT_VERSION = "synthcorona-emissivity-1"
+
+
+class TableFileError(InputError):
+    """An emissivity table file is missing, corrupted, or not a synthcorona table."""
+
+
+def _pack(values: np.ndarray) -> tuple[np.ndarray, float, float, float]:
+    """Pack positive values as int16 of log10; returns (ints, scale, offset, max relative error)."""
+    v = np.asarray(values, dtype=float)
+    vmax = float(v.max()) if v.size else 0.0
+    out = np.full(v.shape, FILL, dtype=np.int16)
+    if vmax <= 0:
+        return out, 1.0, 0.0, 0.0
+    good = v > vmax * RELATIVE_FLOOR
+    lg = np.log10(v[good])
+    lo, hi = float(lg.min()), float(lg.max())
+    if hi == lo:
+        hi = lo + 1e-6
+    scale = (hi - lo) / (2 * QMAX)
+    offset = 0.5 * (hi + lo)
+    out[good] = np.round((lg - offset) / scale).astype(np.int16)
+    rel_err = float(10 ** (0.5 * scale) - 1.0)
+    return out, scale, offset, rel_err
+
+
+def _unpack(ints: np.ndarray, scale: float, offset: float, dtype=np.float64) -> np.ndarray:
+    """Inverse of :func:`_pack` (fill value → 0)."""
+    out = np.zeros(ints.shape, dtype=dtype)
+    good = ints != FILL
+    out[good] = 10.0 ** (ints[good].astype(np.float64) * scale + offset)
+    return out
+
+
+def content_hash(ds: xr.Dataset) -> str:
+    """SHA-256 over every data variable and coordinate as stored (raw ints for packed arrays)."""
+    h = hashlib.sha256()
+    for name in sorted(list(ds.data_vars) + list(ds.coords)):
+        arr = ds[name].values
+        h.update(name.encode())
+        if arr.dtype.kind in "US O".replace(" ", ""):
+            h.update("\x1f".join(map(str, arr.ravel())).encode())
+        else:
+            h.update(np.ascontiguousarray(arr).tobytes())
+        for key in ("pack_scale", "pack_offset"):
+            if key in ds[name].attrs:
+                h.update(f"{key}={float(ds[name].attrs[key])!r}".encode())
+    return h.hexdigest()
+
+
+def write_table(output, results: dict, settings, elements: list[str], attrs: dict) -> pathlib.Path:
+    """Assemble per-ion results into the table file (see module doc). Returns the path written."""
+    output = pathlib.Path(output)
+    names = list(results)
+    # lines
+    wl = np.concatenate([results[n]["wavelength"] for n in names]) if names else np.zeros(0)
+    order = np.argsort(wl, kind="stable")
+    def cat(key, dtype):
+        return np.concatenate([np.asarray(results[n][key]).astype(dtype) for n in names])[order]
+    nn, nT, nE = settings.log_density.size, settings.logT.size, settings.energy.size
+    eps = np.concatenate([results[n]["emissivity"].reshape(-1, nn, nT) for n in names])[order]
+    zline = np.concatenate([np.full(results[n]["wavelength"].size, int(results[n]["Z"])) for n in names])[order]
+    sline = np.concatenate([np.full(results[n]["wavelength"].size, int(results[n]["stage"])) for n in names])[order]
+    # continua per element
+    el_index = {e: i for i, e in enumerate(elements)}
+    ff = np.zeros((len(elements), nT, nE))
+    fb = np.zeros_like(ff)
+    tp = np.zeros((len(elements), nn, nT, nE))
+    mass = np.full(len(elements), np.nan)
+    fip = np.full(len(elements), np.nan)
+    for n in names:
+        sym = n.split("_")[0].capitalize()
+        i = el_index[sym]
+        r = results[n]
+        ff[i] += r["ff"]
+        fb[i] += r["fb"]
+        tp[i] += r["tp"]
+        mass[i] = float(r["mass_amu"])
+        if int(r["stage"]) == 1:
+            fip[i] = float(r["ip_ev"])
+    ds = xr.Dataset(
+        coords={
+            "logT": ("logT", settings.logT, {"units": "log10(K)"}),
+            "log_density": ("log_density", settings.log_density, {"units": "log10(cm-3)"}),
+            "element": ("element", np.array(elements, dtype="U2")),
+            "energy": ("energy", settings.energy, {"units": "keV"}),
+        }
+    )
+    ds["line_wavelength"] = ("line", wl[order], {"units": "Angstrom"})
+    ds["line_Z"] = ("line", zline.astype(np.int16))
+    ds["line_ion"] = ("line", sline.astype(np.int16), {"meaning": "spectroscopic number (12 = XII)"})
+    ds["line_upper"] = ("line", cat("upper", np.int32))
+    ds["line_lower"] = ("line", cat("lower", np.int32))
+    ds["line_observed"] = ("line", cat("observed", np.int8))
+    ds["mass_amu"] = ("element", mass, {"units": "u"})
+    ds["fip_ev"] = ("element", fip, {"units": "eV"})
+    errors = {}
+    for name, dims, arr, unit in (
+        ("line_emissivity", ("line", "log_density", "logT"), eps, "erg cm3 s-1"),
+        ("cont_ff", ("element", "logT", "energy"), ff, "erg cm3 s-1 keV-1"),
+        ("cont_fb", ("element", "logT", "energy"), fb, "erg cm3 s-1 keV-1"),
+        ("cont_2p", ("element", "log_density", "logT", "energy"), tp, "erg cm3 s-1 keV-1"),
+    ):
+        ints, scale, offset, err = _pack(arr)
+        ds[name] = (dims, ints, {"units": unit, "stored_as": "int16 log10 packing", "pack_scale": scale,
+                                 "pack_offset": offset, "fill": int(FILL)})
+        errors[name] = err
+    ds.attrs.update(attrs)
+    ds.attrs["format"] = FORMAT_VERSION
+    ds.attrs["storage_error"] = json.dumps({k: f"max relative decode error {v:.2e}" for k, v in errors.items()}
+                                           | {"floor": f"values below {RELATIVE_FLOOR:g} x variable maximum stored as 0"})
+    ds.attrs["content_hash"] = content_hash(ds)
+    enc = {v: {"zlib": True, "complevel": 6, "shuffle": True} for v in ds.data_vars}
+    for v in PACKED_VARS:
+        enc[v]["chunksizes"] = None
+    enc = {k: {kk: vv for kk, vv in e.items() if vv is not None} for k, e in enc.items()}
+    output.parent.mkdir(parents=True, exist_ok=True)
+    tmp = output.with_name(output.name + ".partial")
+    ds.to_netcdf(tmp, engine="h5netcdf", encoding=enc)
+    tmp.replace(output)
+    return output
+
+
+def read_table(path, verify: bool = True) -> xr.Dataset:
+    """Read a table file, verify its content hash, and decode packed arrays to float.
+
+    Raises :class:`TableFileError` naming the file if it is missing, unreadable,
+    not a synthcorona table, or fails the hash check.
+    """
+    path = pathlib.Path(path)
+    if not path.is_file():
+        raise TableFileError(f"emissivity table {path}: no such file")
+    try:
+        ds = xr.open_dataset(path, engine="h5netcdf", mask_and_scale=False, decode_cf=False).load()
+    except Exception as exc:  # h5py/netCDF errors vary: report them all as a bad file
+        raise TableFileError(f"emissivity table {path} cannot be read ({type(exc).__name__}: {exc}); "
+                             "the file is corrupted or not a netCDF/HDF5 file") from None
+    if ds.attrs.get("format") != FORMAT_VERSION:
+        raise TableFileError(f"emissivity table {path} is not a synthcorona table "
+                             f"(format attribute {ds.attrs.get('format')!r}, expected {FORMAT_VERSION!r})")
+    missing = [v for v in ("line_wavelength", *PACKED_VARS) if v not in ds]
+    if missing:
+        raise TableFileError(f"emissivity table {path} lacks variables {missing}")
+    if verify:
+        got = content_hash(ds)
+        if got != ds.attrs.get("content_hash"):
+            raise TableFileError(f"emissivity table {path} fails its content-hash check (stored "
+                                 f"{ds.attrs.get('content_hash')}, computed {got}): the file was altered or damaged")
+    for name in PACKED_VARS:
+        a = ds[name]
+        dec = _unpack(a.values, float(a.attrs["pack_scale"]), float(a.attrs["pack_offset"]))
+        ds[name] = (a.dims, dec, {k: v for k, v in a.attrs.items() if k not in ("stored_as", "fill")})
+    return ds
