@@ -68,6 +68,12 @@ WINDOW_SIGNIFICANCE = 0.01
 #: Grid points where an ion's total line emissivity is below this fraction of its maximum are not
 #: considered when selecting lines, and its line emissivities there are stored as zero.
 ION_PRESENCE = 1e-5
+#: Line emissivities are computed only where the ion fraction is >= this fraction of its peak (else 0).
+ION_FRACTION_FLOOR = 1e-6
+#: Temperatures per level-population call (memory bound for large two-ion models).
+T_CHUNK = 12
+#: Factor bringing fiasco's per-steradian free-free emission to emission into 4 pi.
+FF_TO_FOUR_PI = 4.0 * np.pi
 _SYMBOLS = ["H", "He", "Li", "Be", "B", "C", "N", "O", "F", "Ne", "Na", "Mg", "Al", "Si", "P", "S", "Cl",
             "Ar", "K", "Ca", "Sc", "Ti", "V", "Cr", "Mn", "Fe", "Co", "Ni", "Cu", "Zn"]
 
@@ -126,18 +132,48 @@ class BuildSettings:
 
 # --------------------------------------------------------------------------- worker side
 
+def _install_identity_cache() -> None:
+    """Memoise plasmapy's element look-ups that fiasco repeats on every dataset access.
+
+    fiasco asks plasmapy for an ion's atomic number/symbol/mass each time it reads a
+    dataset (about 10 ms a call, hundreds of calls per ion); the answers never change.
+    """
+    import functools
+    import plasmapy.particles as pp
+    import fiasco.base as fbase
+
+    for fn in ("atomic_number", "atomic_symbol", "element_name"):
+        orig = getattr(pp, fn)
+        if not hasattr(orig, "cache_info"):
+            setattr(pp, fn, functools.lru_cache(maxsize=None)(orig))
+    if not getattr(fbase.IonBase, "_synthcorona_mass_cached", False):
+        @functools.lru_cache(maxsize=None)
+        def _mass(name_roman):
+            return pp.Particle(name_roman).mass
+
+        fbase.IonBase.mass = property(lambda self: _mass(self.ion_name_roman))
+        fbase.IonBase._synthcorona_mass_cached = True
+
+
 def _install_pe_cache(temperature_k: np.ndarray, ratio: np.ndarray) -> None:
-    """Make fiasco reuse one proton/electron ratio for this temperature grid (see module doc)."""
+    """Make fiasco reuse one proton/electron ratio for this temperature grid (see module doc).
+
+    Any temperature array made of nodes of the grid (e.g. a chunk of it) is served from the cache.
+    """
     import astropy.units as u
     import fiasco.ions as fions
 
     orig = getattr(fions, "_synthcorona_original_pe", fions.proton_electron_ratio)
     fions._synthcorona_original_pe = orig
+    grid = np.asarray(temperature_k, dtype=float)
 
     def cached(temperature, **kwargs):
         t = np.atleast_1d(temperature.to_value(u.K))
-        if t.shape == temperature_k.shape and np.allclose(t, temperature_k, rtol=1e-10, atol=0):
-            return u.Quantity(ratio)
+        i = np.clip(np.searchsorted(grid, t), 0, grid.size - 1)
+        j = np.clip(i - 1, 0, grid.size - 1)
+        i = np.where(np.abs(grid[j] - t) < np.abs(grid[i] - t), j, i)
+        if np.allclose(grid[i], t, rtol=1e-10, atol=0):
+            return u.Quantity(ratio[i])
         return orig(temperature, **kwargs)
 
     fions.proton_electron_ratio = cached
@@ -241,6 +277,7 @@ def compute_ion(ion_name: str, h5: str, logT: np.ndarray, log_density: np.ndarra
     fiasco.log.setLevel("ERROR")
     warnings.filterwarnings("ignore")
     T = 10 ** logT * u.K
+    _install_identity_cache()
     _install_pe_cache(T.to_value(u.K), pe_ratio)
     dens = 10 ** log_density * u.cm ** -3
     ion = fiasco.Ion(ion_name, T, hdf5_dbase_root=h5, abundance=1.0)
@@ -260,7 +297,17 @@ def compute_ion(ion_name: str, h5: str, logT: np.ndarray, log_density: np.ndarra
     up = lo = obs = np.zeros(0, dtype=np.int32)
     has_lines = all(ion._has_dataset(d) for d in ("elvlc", "wgfa", "scups")) and np.any(frac > 0)
     if has_lines:
-        g = ion.contribution_function(dens).to_value(u.erg * u.cm ** 3 / u.s)  # (T, n, lines)
+        # Level populations only where the ion exists (fraction >= ION_FRACTION_FLOOR of its peak),
+        # in chunks of temperatures to bound memory (two-ion models reach ~1500 levels).
+        t_idx = np.flatnonzero(frac >= ION_FRACTION_FLOOR * frac.max())
+        g = None
+        for k in range(0, t_idx.size, T_CHUNK):
+            sub = t_idx[k:k + T_CHUNK]
+            ion_k = fiasco.Ion(ion_name, T[sub], hdf5_dbase_root=h5, abundance=1.0)
+            gk = ion_k.contribution_function(dens).to_value(u.erg * u.cm ** 3 / u.s)  # (t, n, lines)
+            if g is None:
+                g = np.zeros((nT,) + gk.shape[1:])
+            g[sub] = gk
         tr = ion.transitions
         bb = tr.is_bound_bound
         wl = tr.wavelength[bb].to_value(u.AA)
@@ -418,6 +465,9 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
         for key in ("wavelength", "upper", "lower", "observed"):
             r[key] = r[key][keep]
         r["emissivity"] = eps
+        # fiasco's Ion.free_free is per steradian (Phillips et al. 2008, eq. 4.114), unlike its free_bound,
+        # two_photon and contribution_function, which are into 4 pi: bring it to 4 pi.
+        r["ff"] = r["ff"] * FF_TO_FOUR_PI
         results[name] = r
     attrs = {
         "chianti_version": src.version,

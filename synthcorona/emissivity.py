@@ -1,0 +1,243 @@
+"""The emissivity table in memory: loading, provenance, and evaluation at a density or pressure.
+
+An :class:`EmissivityTable` wraps the xarray Dataset described in
+``docs/table_format.md``. It answers two questions for the synthesis:
+line emissivities (n_lines, n_T) and per-element continua (n_el, n_T, n_E) at a
+given electron density (log–log interpolation between the table densities) or at
+constant pressure (n_e = p / T along the temperature axis). It never imports
+fiasco; tables are built by :mod:`synthcorona.atomic.builder`.
+"""
+from __future__ import annotations
+
+import functools
+import importlib.resources
+import json
+import pathlib
+
+import numpy as np
+import astropy.units as u
+
+from .tablefile import TableFileError, read_table
+from .validation import InputError, as_quantity, check_finite
+
+__all__ = ["EmissivityTable", "load_emissivity", "DEFAULT_TABLE_NAME"]
+
+DEFAULT_TABLE_NAME = "emissivity_default.nc"
+_GRID_TOL = 1e-9
+
+
+class EmissivityTable:
+    """Line and continuum emissivities on a (log T, log n_e) grid, with provenance.
+
+    Attributes
+    ----------
+    logT : ndarray
+        log10 temperature grid [K].
+    log_density : ndarray
+        log10 electron densities of the table [cm^-3].
+    elements : list of str
+        Element symbols of the continuum arrays.
+    energy : ndarray
+        Continuum energy grid [keV].
+    line_wavelength : ndarray
+        Line wavelengths [Angstrom], ascending.
+    line_Z, line_ion : ndarray
+        Atomic number and spectroscopic number of each line's ion.
+    provenance : dict
+        The file's attributes (CHIANTI version and substitutions, fiasco version, ioneq, ...).
+    """
+
+    def __init__(self, dataset, path=None):
+        ds = dataset
+        self.path = None if path is None else pathlib.Path(path)
+        self.logT = np.asarray(ds["logT"].values, dtype=float)
+        self.log_density = np.asarray(ds["log_density"].values, dtype=float)
+        self.elements = [str(e) for e in ds["element"].values]
+        self.energy = np.asarray(ds["energy"].values, dtype=float)
+        self.line_wavelength = np.asarray(ds["line_wavelength"].values, dtype=float)
+        self.line_Z = np.asarray(ds["line_Z"].values, dtype=int)
+        self.line_ion = np.asarray(ds["line_ion"].values, dtype=int)
+        self.line_upper = np.asarray(ds["line_upper"].values, dtype=int)
+        self.line_lower = np.asarray(ds["line_lower"].values, dtype=int)
+        self._line_eps = np.asarray(ds["line_emissivity"].values)  # (line, n, T)
+        self._ff = np.asarray(ds["cont_ff"].values)  # (el, T, E)
+        self._fb = np.asarray(ds["cont_fb"].values)
+        self._tp = np.asarray(ds["cont_2p"].values)  # (el, n, T, E)
+        self.mass_amu = np.asarray(ds["mass_amu"].values, dtype=float)
+        self.fip_ev = np.asarray(ds["fip_ev"].values, dtype=float)
+        self.provenance = dict(ds.attrs)
+        from .abundances import ELEMENTS
+
+        self._z_of_element = np.array([ELEMENTS.index(e) + 1 for e in self.elements])
+        # element index of each line (lines of elements absent from the continuum list are refused)
+        z_to_idx = {z: i for i, z in enumerate(self._z_of_element)}
+        try:
+            self.line_element_index = np.array([z_to_idx[z] for z in self.line_Z], dtype=int)
+        except KeyError as exc:
+            raise TableFileError(f"table {path}: line of element Z={exc.args[0]} has no continuum entry") from None
+        self._cache: dict = {}
+
+    # ------------------------------------------------------------------ description
+    def __repr__(self) -> str:
+        return (f"<EmissivityTable {self.path.name if self.path else '(in memory)'}: "
+                f"{self.line_wavelength.size} lines, {len(self.elements)} elements, "
+                f"logT {self.logT[0]:.2f}-{self.logT[-1]:.2f}, log n_e {self.log_density[0]:g}-"
+                f"{self.log_density[-1]:g}, CHIANTI {self.provenance.get('chianti_version')}>")
+
+    @property
+    def temperature(self) -> u.Quantity:
+        """Temperature grid as a Quantity [K]."""
+        return (10 ** self.logT) * u.K
+
+    @property
+    def density(self) -> u.Quantity:
+        """Table electron densities [cm^-3]."""
+        return (10 ** self.log_density) * u.cm ** -3
+
+    def provenance_attrs(self) -> dict:
+        """Short provenance dict for the attrs of results computed from this table."""
+        keys = ("chianti_version", "chianti_provenance", "fiasco_version", "ioneq", "content_hash", "line_threshold")
+        out = {f"table_{k}": self.provenance[k] for k in keys if k in self.provenance}
+        out["table_path"] = str(self.path) if self.path else ""
+        return out
+
+    # ------------------------------------------------------------------ checks
+    def check_logT(self, name: str, logT) -> np.ndarray:
+        """Return ``logT`` as an array; raise :class:`InputError` if NaN or outside the table grid."""
+        arr = np.asarray(logT, dtype=float)
+        check_finite(name, arr)
+        lo, hi = self.logT[0], self.logT[-1]
+        bad = (arr < lo - _GRID_TOL) | (arr > hi + _GRID_TOL)
+        if np.any(bad):
+            v = arr[bad]
+            raise InputError(f"{name}: log10 T = {v[:4]} K outside the table range [{lo:g}, {hi:g}] "
+                             f"(T = {10**lo:.3g} to {10**hi:.3g} K); no extrapolation is done")
+        return np.clip(arr, lo, hi)
+
+    def _density_weights(self, name: str, log_n: np.ndarray):
+        """Indices and log-linear weights of densities on the table grid (raise outside)."""
+        check_finite(name, log_n)
+        lo, hi = self.log_density[0], self.log_density[-1]
+        bad = (log_n < lo - _GRID_TOL) | (log_n > hi + _GRID_TOL)
+        if np.any(bad):
+            v = 10 ** np.asarray(log_n)[bad]
+            raise InputError(f"{name}={v[:4]} cm^-3 is outside the table density range "
+                             f"[{10**lo:.3g}, {10**hi:.3g}] cm^-3; no extrapolation is done")
+        x = np.clip(log_n, lo, hi)
+        i = np.clip(np.searchsorted(self.log_density, x, side="right") - 1, 0, self.log_density.size - 2)
+        w = (x - self.log_density[i]) / (self.log_density[i + 1] - self.log_density[i])
+        return i, w
+
+    def density_profile(self, density=None, pressure=None) -> tuple[np.ndarray, str]:
+        """log10 n_e at each table temperature, and a text label, from a density or a pressure.
+
+        Parameters
+        ----------
+        density : Quantity [cm^-3], optional
+            Constant electron density (default 1e10 cm^-3 if neither is given).
+        pressure : Quantity [K cm^-3], optional
+            Constant electron pressure n_e T; n_e = p / T at each grid temperature.
+            Grid temperatures where n_e falls outside the table get NaN (the synthesis
+            raises if the DEM puts emission measure there).
+        """
+        if density is not None and pressure is not None:
+            raise InputError("give density or pressure, not both")
+        if pressure is not None:
+            p = as_quantity("pressure", pressure, u.K * u.cm ** -3)
+            check_finite("pressure", p)
+            if np.ndim(p) != 0 or p.value <= 0:
+                raise InputError(f"pressure={pressure} must be a single positive value in K cm^-3")
+            log_n = np.log10(p.value) - self.logT
+            out = (log_n < self.log_density[0] - _GRID_TOL) | (log_n > self.log_density[-1] + _GRID_TOL)
+            log_n = np.where(out, np.nan, log_n)
+            return log_n, f"constant pressure n_e T = {p.value:.3g} K cm-3"
+        if density is None:
+            density = 1e10 * u.cm ** -3
+        n = as_quantity("density", density, u.cm ** -3)
+        if np.ndim(n) != 0:
+            raise InputError(f"density must be a single value (got shape {np.shape(n)}); use pressure= for a "
+                             "temperature-dependent density")
+        if not n.value > 0:
+            raise InputError(f"density={density} must be > 0 (table range {10**self.log_density[0]:.3g}-"
+                             f"{10**self.log_density[-1]:.3g} cm^-3)")
+        log_n = np.full(self.logT.size, np.log10(n.value))
+        self._density_weights("density", log_n[:1])
+        return log_n, f"constant density n_e = {n.value:.3g} cm-3"
+
+    # ------------------------------------------------------------------ evaluation
+    def _interp_density(self, arr: np.ndarray, log_n: np.ndarray, axis_n: int, axis_T: int) -> np.ndarray:
+        """Log–log interpolate ``arr`` along its density axis to ``log_n`` (one value per T).
+
+        Zero in either neighbour gives zero (a geometric mean). NaN densities give NaN.
+        """
+        finite = np.isfinite(log_n)
+        i, w = self._density_weights("density", np.where(finite, log_n, self.log_density[0]))
+        arr_m = np.moveaxis(arr, (axis_n, axis_T), (-2, -1))  # (..., n, T)
+        t_idx = np.arange(self.logT.size)
+        a0 = arr_m[..., i, t_idx]
+        a1 = arr_m[..., i + 1, t_idx]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            out = np.where((a0 > 0) & (a1 > 0), a0 ** (1 - w) * a1 ** w, np.where(w == 0, a0, np.where(w == 1, a1, 0.0)))
+        out = np.where(finite, out, np.nan)
+        return out  # (..., T)
+
+    def line_emissivity(self, log_n: np.ndarray) -> np.ndarray:
+        """Line emissivities per unit abundance at n_e(T) = 10**log_n, shape (n_lines, n_T) [erg cm3 s-1]."""
+        key = ("lines", log_n.tobytes())
+        if key not in self._cache:
+            self._cache[key] = self._interp_density(self._line_eps, log_n, 1, 2)
+        return self._cache[key]
+
+    def continuum(self, log_n: np.ndarray) -> np.ndarray:
+        """Per-element continuum ff + fb + 2p at n_e(T), shape (n_el, n_T, n_E) [erg cm3 s-1 keV-1]."""
+        key = ("cont", log_n.tobytes())
+        if key not in self._cache:
+            tp = self._interp_density(np.moveaxis(self._tp, 3, 1), log_n, 2, 3)  # (el, E, T)
+            self._cache[key] = self._ff + self._fb + np.moveaxis(tp, 1, 2)
+        return self._cache[key]
+
+    def continuum_components(self) -> dict:
+        """Raw continuum arrays: ``ff``, ``fb`` (n_el, n_T, n_E) and ``2p`` (n_el, n_n, n_T, n_E) [erg cm3 s-1 keV-1]."""
+        return {"ff": self._ff, "fb": self._fb, "2p": self._tp}
+
+    def line_emissivity_grid(self) -> np.ndarray:
+        """Raw line emissivities (n_lines, n_density, n_T) [erg cm3 s-1] per unit abundance."""
+        return self._line_eps
+
+
+def _default_path() -> pathlib.Path:
+    return pathlib.Path(str(importlib.resources.files("synthcorona") / "data" / DEFAULT_TABLE_NAME))
+
+
+@functools.lru_cache(maxsize=4)
+def _load_cached(path: str, mtime_ns: int, size: int) -> EmissivityTable:
+    return EmissivityTable(read_table(path, verify=True), path)
+
+
+def load_emissivity(path=None) -> EmissivityTable:
+    """Load an emissivity table and verify its content hash and provenance.
+
+    Parameters
+    ----------
+    path : str or pathlib.Path, optional
+        A table built with ``synthcorona build-table`` (e.g. from a full CHIANTI
+        install). Default: the table embedded in the package (CHIANTI 10.1 composite;
+        see its ``provenance`` and the README).
+
+    Raises
+    ------
+    TableFileError
+        Missing, corrupted or foreign file, or a table without CHIANTI provenance.
+    """
+    p = pathlib.Path(path) if path is not None else _default_path()
+    if not p.is_file():
+        if path is None:
+            raise TableFileError(f"the embedded emissivity table {p} is missing from this installation; "
+                                 "reinstall synthcorona or build one with 'synthcorona build-table'")
+        raise TableFileError(f"emissivity table {p}: no such file")
+    st = p.stat()
+    table = _load_cached(str(p.resolve()), st.st_mtime_ns, st.st_size)
+    for key in ("chianti_version", "fiasco_version", "ioneq", "content_hash"):
+        if not table.provenance.get(key):
+            raise TableFileError(f"emissivity table {p} has no '{key}' provenance attribute")
+    return table

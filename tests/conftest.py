@@ -1,0 +1,44 @@
+"""Shared fixtures: the embedded table, and (when SYNTHCORONA_CHIANTI is set) a small table
+built from CHIANTI for the checks against direct fiasco calculations."""
+import os
+import pathlib
+
+import numpy as np
+import pytest
+
+CHIANTI_ENV = "SYNTHCORONA_CHIANTI"
+#: A few ions spanning the checks of the issue: Fe XII (one of Fe IX-XIII), Fe XVIII (Fe XVII-XX),
+#: O VII/VIII, and H/He for the continuum.
+SMALL_IONS = ["h_1", "h_2", "he_1", "he_2", "he_3", "o_6", "o_7", "o_8", "o_9", "fe_12", "fe_18"]
+SMALL_ELEMENTS = ["H", "He", "O", "Fe"]
+#: A coarser grid than the default keeps the CI build short (logT 5.5-7.5 step 0.05, three densities).
+SMALL_LOGT = np.round(np.arange(5.5, 7.5 + 1e-9, 0.05), 6)
+SMALL_LOGN = np.array([8.0, 10.0, 12.0])
+
+
+@pytest.fixture(scope="session")
+def table():
+    import synthcorona as sc
+
+    return sc.load_emissivity()
+
+
+@pytest.fixture(scope="session")
+def chianti_path():
+    p = os.environ.get(CHIANTI_ENV)
+    if not p or not pathlib.Path(p).exists():
+        pytest.skip(f"needs the CHIANTI database: set {CHIANTI_ENV} to an ASCII CHIANTI tree or its .tar.xz "
+                    "(CI extracts ../shared/chianti/chianti-10.1-composite.tar.xz)")
+    return p
+
+
+@pytest.fixture(scope="session")
+def small_build(chianti_path, tmp_path_factory):
+    """Per-ion work directory and the thresholded small table built from CHIANTI."""
+    from synthcorona.atomic.builder import BuildSettings, build_table
+
+    work = tmp_path_factory.mktemp("build-work")
+    settings = BuildSettings(logT=SMALL_LOGT, log_density=SMALL_LOGN, elements=SMALL_ELEMENTS, ions=SMALL_IONS)
+    path = build_table(work / "small.nc", chianti=chianti_path, settings=settings, jobs=2, work_dir=work,
+                       progress=False)
+    return {"work": work, "path": path, "settings": settings, "chianti": chianti_path}

@@ -1,0 +1,204 @@
+"""Checks of spectra, band fluxes and Λ(T) computed from the embedded table against published physics."""
+import numpy as np
+import astropy.units as u
+import astropy.constants as const
+import pytest
+
+import synthcorona as sc
+from synthcorona.synthesis import prepare, band_kernel
+
+
+def _ff_per_kev(table, element="H"):
+    """Free-free emissivity of one element per unit abundance (erg cm3 s-1 keV-1), (T, E)."""
+    i = table.elements.index(element)
+    return table.continuum_components()["ff"][i]
+
+
+def _gaunt_born_elwert(T, e_kev, Z=1):
+    """Thermally averaged free-free Gaunt factor in the Born approximation with the Elwert factor.
+
+    Non-relativistic Born cross-section g_B = sqrt(3)/pi ln[(k_i + k_f)/(k_i - k_f)] (Karzas & Latter
+    1961, ApJS 6, 167, eq. 35 limit; Rybicki & Lightman 1979, sect. 5.2) times the Coulomb correction of
+    Elwert (1939, Ann. Phys. 426, 178), f_E = (k_i/k_f) (1 - exp(-2 pi eta_i)) / (1 - exp(-2 pi eta_f)),
+    eta = Z / (k a0), averaged over a Maxwellian of final electron energies.
+    """
+    from scipy.integrate import quad
+
+    ry = 13.605693  # eV, Rydberg energy (CODATA)
+    kT = (const.k_B * T * u.K).to_value(u.eV)
+    hv = e_kev * 1e3
+
+    def integrand(ef):
+        ki, kf = np.sqrt((ef + hv) / ry), np.sqrt(ef / ry)
+        gb = np.sqrt(3) / np.pi * np.log((ki + kf) / (ki - kf))
+        fe = (ki / kf) * (-np.expm1(-2 * np.pi * Z / ki)) / (-np.expm1(-2 * np.pi * Z / kf))
+        return gb * fe * np.exp(-ef / kT) / kT
+
+    return quad(integrand, 0, 50 * kT, limit=200, points=[1e-3 * kT, kT])[0]
+
+
+@pytest.mark.parametrize("logT, energies_kev, tol", [
+    (7.0, [0.3, 0.5, 1.0, 2.0, 4.0], 0.03),
+    (8.0, [1.0, 3.0, 10.0, 20.0], 0.08),
+])
+def test_hydrogen_bremsstrahlung_against_rybicki_lightman(table, logT, energies_kev, tol):
+    # Rybicki & Lightman 1979, eq. 5.14b: eps_nu = 6.8e-38 Z^2 n_e n_i T^-1/2 exp(-h nu/kT) g_ff
+    #   [erg s-1 cm-3 Hz-1]; pure H, fully ionised (n_i = n_H, Z = 1), per n_e n_H.
+    # Gaunt factor: Born-Elwert thermal average (above), accurate to a few per cent for
+    #   gamma^2 = Z^2 Ry / kT << 1 (0.016 at 10 MK, 0.0016 at 100 MK; van Hoof et al. 2014, MNRAS 444,
+    #   420, Fig. 1 - from memory). At 100 MK relativistic corrections (Itoh et al. 2000, ApJS 128, 125)
+    #   add several per cent at 10-20 keV, hence the wider tolerance there. The constant 6.8e-38 is
+    #   rounded (6.84e-38 exactly), a 0.6 % effect.
+    it = int(np.argmin(np.abs(table.logT - logT)))
+    assert abs(table.logT[it] - logT) < 1e-6
+    T = 10 ** logT
+    kT_kev = (const.k_B * T * u.K).to_value(u.keV)
+    e = np.asarray(energies_kev)
+    x = np.log(table.energy)
+    ff = np.exp(np.interp(np.log(e), x, np.log(_ff_per_kev(table)[it])))
+    uu = e / kT_kev
+    gaunt = np.array([_gaunt_born_elwert(T, ei) for ei in e])
+    hz_per_kev = (1 * u.keV / const.h).to_value(u.Hz)
+    expected = 6.8e-38 * T ** -0.5 * np.exp(-uu) * gaunt * hz_per_kev
+    np.testing.assert_allclose(ff, expected, rtol=tol)
+
+
+def test_radiative_loss_shape(table):
+    # Published CHIANTI radiative-loss curves (e.g. Dere et al. 2009, A&A 498, 915, Fig. 13, coronal
+    # abundances; Landi & Landini 1999, A&A 347, 401) show: the global maximum at 1-3e5 K (C, O lines),
+    # a hump from Fe VIII-XIV near 1 MK, a shoulder from Fe XVII-XX near 1e7 K, and a bremsstrahlung
+    # tail ~ T^0.5 above ~4e7 K; peak value a few 1e-22 erg cm3 s-1.
+    T = np.logspace(4.5, 8.5, 161) * u.K
+    lam = sc.radiative_loss(T, table=table, abundances="coronal", density=1e10 * u.cm ** -3).value
+    logT = np.log10(T.value)
+    ipk = np.argmax(lam)
+    assert 1e5 <= 10 ** logT[ipk] <= 3e5
+    assert 1e-22 < lam[ipk] < 2e-21  # Dere et al. 2009 Fig. 13 (read off the figure)
+    # iron hump near 1 MK: a local maximum between 0.6 and 2 MK
+    sel = (logT >= np.log10(6e5)) & (logT <= np.log10(2e6))
+    j = np.argmax(lam[sel])
+    assert 0 < j < sel.sum() - 1, "Λ has no local maximum near 1 MK"
+    # Fe XVII-XX shoulder: Λ(1e7 K) above the power-law line joining 4e6 and 3e7 K (local excess)
+    def at(t):
+        return np.interp(np.log10(t), logT, np.log10(lam))
+    chord = at(4e6) + (at(3e7) - at(4e6)) * (np.log10(1e7) - np.log10(4e6)) / (np.log10(3e7) - np.log10(4e6))
+    assert at(1e7) > chord
+    # bremsstrahlung slope above 4e7 K (common practice: d log Λ / d log T -> 0.5)
+    slope = (at(3e8) - at(8e7)) / (np.log10(3e8) - np.log10(8e7))
+    assert 0.3 < slope < 0.6
+
+
+@pytest.mark.parametrize("element, stage, wavelength, logT_pub", [
+    # Peak formation temperatures (log T of the maximum of G(T)) with CHIANTI ionization equilibrium:
+    # Del Zanna & Mason 2018, Living Rev. Sol. Phys. 15, 5, line tables (values from memory):
+    ("Fe", 9, 171.073, 5.85),
+    ("Fe", 12, 195.119, 6.15),
+    ("Fe", 18, 93.932, 6.85),
+    ("O", 7, 21.602, 6.30),
+])
+def test_peak_formation_temperatures(table, element, stage, wavelength, logT_pub):
+    z = sc.abundances.ELEMENTS.index(element) + 1
+    m = (table.line_Z == z) & (table.line_ion == stage) & (np.abs(table.line_wavelength - wavelength) < 0.01)
+    assert m.sum() >= 1, f"{element} {stage} {wavelength} not in the table"
+    g = table.line_emissivity(np.full(table.logT.size, 9.0))[m].sum(axis=0)
+    i = int(np.argmax(g))
+    # parabola through the maximum and its neighbours in log G
+    y0, y1, y2 = np.log10(g[i - 1: i + 2])
+    dx = table.logT[1] - table.logT[0]
+    peak = table.logT[i] + 0.5 * dx * (y0 - y2) / (y0 - 2 * y1 + y2)
+    assert abs(peak - logT_pub) <= 0.1
+
+
+def test_flux_linear_in_em_and_isothermal_equals_table(table):
+    band = (0.1, 2.4) * u.keV
+    d = 10 * u.pc
+    dem = sc.GaussianDEM(peak_logT=6.3, width_logT=0.15, total_em=1e51 * u.cm ** -3)
+    f1 = sc.band_flux(dem, band=band, distance=d, table=table)
+    f3 = sc.band_flux(dem.scaled(3.0), band=band, distance=d, table=table)
+    assert f3.unit.is_equivalent(u.erg / u.s / u.cm ** 2)
+    np.testing.assert_allclose(f3.value, 3 * f1.value, rtol=1e-12)
+    # an isothermal DEM on a grid node reproduces the table kernel at that node exactly
+    it = 30
+    iso = sc.IsothermalDEM(temperature=10 ** table.logT[it] * u.K, total_em=1e50 * u.cm ** -3)
+    lum = sc.luminosity(iso, band=band, table=table)
+    k = band_kernel(np.array([[0.1, 2.4]]), prepare(table, "coronal", 1e10 * u.cm ** -3))[0, it]
+    np.testing.assert_allclose(lum.to_value(u.erg / u.s), 1e50 * k, rtol=1e-10)
+
+
+def test_spectrum_conserves_flux_under_rebinning(table):
+    dem = sc.GaussianDEM(peak_logT=6.5, width_logT=0.2, total_em=1e51 * u.cm ** -3)
+    fine = sc.synthesize(dem, wavelength=np.linspace(5.0, 300.0, 29501) * u.AA, edges=True, table=table)
+    coarse = sc.synthesize(dem, wavelength=np.linspace(5.0, 300.0, 119) * u.AA, edges=True, table=table)
+    assert fine.attrs["units"] == "erg / (Angstrom s)"
+    tot_f = np.sum(fine.values * 0.01)
+    tot_c = np.sum(coarse.values * 2.5)
+    lum = sc.luminosity(dem, band=(5.0, 300.0) * u.AA, table=table).to_value(u.erg / u.s)
+    np.testing.assert_allclose(tot_f, lum, rtol=1e-9)
+    np.testing.assert_allclose(tot_c, lum, rtol=1e-9)
+    # energy grid gives the same band total
+    e_edges = np.sort((np.linspace(5.0, 300.0, 119) * u.AA).to_value(u.keV, equivalencies=u.spectral()))
+    espec = sc.synthesize(dem, energy=e_edges * u.keV, edges=True, table=table)
+    np.testing.assert_allclose(np.sum(espec.values * np.diff(e_edges)), lum, rtol=1e-9)
+
+
+def test_broadened_lines_conserve_flux(table):
+    dem = sc.IsothermalDEM(temperature=1.5e6 * u.K, total_em=1e50 * u.cm ** -3)
+    grid = np.arange(150.0, 220.0, 0.002) * u.AA
+    sharp = sc.synthesize(dem, wavelength=grid, table=table)
+    broad = sc.synthesize(dem, wavelength=grid, table=table, thermal_broadening=True, fwhm=0.05 * u.AA)
+    inner = (sharp.wavelength > 160) & (sharp.wavelength < 210)
+    np.testing.assert_allclose(broad.values[inner].sum(), sharp.values[inner].sum(), rtol=2e-3)
+    # thermal Doppler FWHM of Fe IX 171 at 1.5 MK: lambda/c sqrt(8 ln2 kT/m) = 0.0127 A
+    # (Rybicki & Lightman 1979, eq. 10.73) -> the 0.05 A instrumental width dominates
+    assert broad.values.max() < sharp.values.max()
+
+
+def test_bad_inputs_raise_clear_errors(table, tmp_path):
+    dem = sc.GaussianDEM(peak_logT=6.3, width_logT=0.15, total_em=1e51 * u.cm ** -3)
+    with pytest.raises(sc.InputError, match="total_em"):
+        sc.GaussianDEM(peak_logT=6.3, width_logT=0.15, total_em=-1e51 * u.cm ** -3)
+    with pytest.raises(sc.InputError, match="temperature"):
+        sc.radiative_loss(np.array([1e6, np.nan]) * u.K, table=table)
+    with pytest.raises(sc.InputError, match="outside the table range"):
+        sc.radiative_loss(np.array([1e9]) * u.K, table=table)
+    with pytest.raises(u.UnitsError, match="distance"):
+        sc.band_flux(dem, band=(0.1, 2.4) * u.keV, distance=10 * u.g, table=table)
+    with pytest.raises(u.UnitsError, match="band"):
+        sc.band_flux(dem, band=(0.1, 2.4) * u.s, distance=10 * u.pc, table=table)
+    with pytest.raises(sc.InputError, match="martian.*not a known abundance set"):
+        sc.band_flux(dem, band=(0.1, 2.4) * u.keV, distance=10 * u.pc, table=table, abundances="martian")
+    with pytest.raises(sc.InputError, match="Xx"):
+        sc.band_flux(dem, band=(0.1, 2.4) * u.keV, distance=10 * u.pc, table=table, abundances={"Xx": 1e-4})
+    with pytest.raises(sc.InputError, match="density"):
+        sc.band_flux(dem, band=(0.1, 2.4) * u.keV, distance=10 * u.pc, table=table, density=1e14 * u.cm ** -3)
+    with pytest.raises(sc.InputError, match="continuum grid"):
+        sc.synthesize(dem, energy=np.linspace(40, 80, 10) * u.keV, table=table)
+    with pytest.raises(u.UnitsError, match="wavelength"):
+        sc.synthesize(dem, wavelength=np.arange(1, 10) * u.keV, table=table)
+
+
+def test_corrupted_table_file_is_refused(table, tmp_path):
+    src = table.path.read_bytes()
+    bad = tmp_path / "cut.nc"
+    bad.write_bytes(src[: len(src) // 2])
+    with pytest.raises(sc.TableFileError, match="cut.nc"):
+        sc.load_emissivity(bad)
+    junk = tmp_path / "junk.nc"
+    junk.write_text("not a table")
+    with pytest.raises(sc.TableFileError, match="junk.nc"):
+        sc.load_emissivity(junk)
+    with pytest.raises(sc.TableFileError, match="no such file"):
+        sc.load_emissivity(tmp_path / "absent.nc")
+
+
+def test_altered_numbers_fail_the_hash(table, tmp_path):
+    import xarray as xr
+
+    ds = xr.open_dataset(table.path, engine="h5netcdf", mask_and_scale=False, decode_cf=False).load()
+    v = ds["line_emissivity"].values.copy()
+    v.flat[np.flatnonzero(v != -32768)[0]] += 1
+    ds["line_emissivity"].values = v
+    out = tmp_path / "altered.nc"
+    ds.to_netcdf(out, engine="h5netcdf")
+    with pytest.raises(sc.TableFileError, match="content-hash"):
+        sc.load_emissivity(out)
