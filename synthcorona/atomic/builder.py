@@ -108,13 +108,16 @@ class BuildSettings:
     """Grids and choices of one table build (everything that determines the result)."""
 
     def __init__(self, logT=None, log_density=None, energy=None, elements=None, line_threshold=1e-3,
-                 ions=None):
+                 ions=None, two_ion_max_levels=None):
         self.logT = np.asarray(DEFAULT_LOGT if logT is None else logT, dtype=float)
         self.log_density = np.asarray(DEFAULT_LOG_DENSITY if log_density is None else log_density, dtype=float)
         self.energy = np.asarray(default_energy_grid() if energy is None else energy, dtype=float)
         self.elements = list(elements) if elements is not None else None
         self.line_threshold = float(line_threshold)
         self.ions = list(ions) if ions is not None else None
+        #: Use fiasco's two-ion level-population model (where CHIANTI has autoionization / level-resolved
+        #: recombination data) only when the two ions together have at most this many levels (None: always).
+        self.two_ion_max_levels = None if two_ion_max_levels is None else int(two_ion_max_levels)
         for name, arr in (("logT", self.logT), ("log_density", self.log_density), ("energy", self.energy)):
             if arr.ndim != 1 or arr.size < 2 or not np.all(np.diff(arr) > 0):
                 raise InputError(f"{name} grid must be 1-D, strictly increasing, with >= 2 points")
@@ -126,7 +129,7 @@ class BuildSettings:
         h = hashlib.sha256()
         for arr in (self.logT, self.log_density, self.energy):
             h.update(np.ascontiguousarray(arr).tobytes())
-        h.update(f"{h5.name}|{BUILDER_VERSION}".encode())  # line selection happens at assembly
+        h.update(f"{h5.name}|{BUILDER_VERSION}|{self.two_ion_max_levels}".encode())  # lines selected at assembly
         return h.hexdigest()[:16]
 
 
@@ -261,7 +264,7 @@ def select_lines_windowed(wavelength: np.ndarray, eps: np.ndarray, fraction: flo
 
 
 def compute_ion(ion_name: str, h5: str, logT: np.ndarray, log_density: np.ndarray, energy: np.ndarray,
-                pe_ratio: np.ndarray, line_threshold: float) -> dict:
+                pe_ratio: np.ndarray, two_ion_max_levels=None) -> dict:
     """Lines and continua of one ion (worker function; imports fiasco).
 
     Returns a dict of numpy arrays: ``wavelength`` (Å), ``upper``, ``lower``,
@@ -300,11 +303,20 @@ def compute_ion(ion_name: str, h5: str, logT: np.ndarray, log_density: np.ndarra
         # Level populations only where the ion exists (fraction >= ION_FRACTION_FLOOR of its peak),
         # in chunks of temperatures to bound memory (two-ion models reach ~1500 levels).
         t_idx = np.flatnonzero(frac >= ION_FRACTION_FLOOR * frac.max())
+        two_ion = ion._has_dataset("auto") or ion._has_dataset("rrlvl")
+        if two_ion and two_ion_max_levels is not None:
+            try:
+                n_next = ion.next_ion().n_levels
+            except (MissingIonError, MissingDatasetException):
+                n_next = 0
+            two_ion = ion.n_levels + n_next <= two_ion_max_levels
+        out["two_ion"] = bool(two_ion)
         g = None
         for k in range(0, t_idx.size, T_CHUNK):
             sub = t_idx[k:k + T_CHUNK]
             ion_k = fiasco.Ion(ion_name, T[sub], hdf5_dbase_root=h5, abundance=1.0)
-            gk = ion_k.contribution_function(dens).to_value(u.erg * u.cm ** 3 / u.s)  # (t, n, lines)
+            gk = ion_k.contribution_function(dens, use_two_ion_model=two_ion).to_value(
+                u.erg * u.cm ** 3 / u.s)  # (t, n, lines)
             if g is None:
                 g = np.zeros((nT,) + gk.shape[1:])
             g[sub] = gk
@@ -434,7 +446,7 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
             done += 1
         else:
             todo.append((name, str(h5), settings.logT, settings.log_density, settings.energy, pe,
-                         settings.line_threshold, path))
+                         settings.two_ion_max_levels, path))
     timings = {}
     bar = tqdm(total=len(ions), initial=done, unit="ion", desc="ions", disable=not progress)
     if int(jobs) == 1:
@@ -465,6 +477,7 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
         for key in ("wavelength", "upper", "lower", "observed"):
             r[key] = r[key][keep]
         r["emissivity"] = eps
+        r["two_ion"] = bool(r.get("two_ion", True))
         # fiasco's Ion.free_free is per steradian (Phillips et al. 2008, eq. 4.114), unlike its free_bound,
         # two_photon and contribution_function, which are into 4 pi: bring it to 4 pi.
         r["ff"] = r["ff"] * FF_TO_FOUR_PI
@@ -488,6 +501,11 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
         "builder_version": BUILDER_VERSION,
         "elements": " ".join(elements),
         "ions": " ".join(ions),
+        "two_ion_model": ("fiasco two-ion level populations where CHIANTI has the data"
+                          + ("" if settings.two_ion_max_levels is None else
+                             f" and the two ions have <= {settings.two_ion_max_levels} levels together")
+                          + "; single-ion model for: " + (" ".join(n for n in ions if not results[n]["two_ion"])
+                                                          or "none")),
         "build_seconds_per_ion": json.dumps({k: round(v, 2) for k, v in timings.items()}),
     }
     return write_table(output, results, settings, elements, attrs)
