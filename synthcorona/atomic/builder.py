@@ -422,6 +422,7 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
     import fiasco
     from tqdm import tqdm
 
+    t_start = time.perf_counter()
     if settings is None:
         settings = BuildSettings(**kwargs)
     elif kwargs:
@@ -464,6 +465,7 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
     bar.close()
     results = {}
     n_all = n_kept = 0
+    ion_seconds = {}
     for name in ions:
         r = dict(np.load(work / "ions" / f"{name}.npz"))
         eps = r["emissivity"].astype(np.float64)
@@ -478,6 +480,7 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
             r[key] = r[key][keep]
         r["emissivity"] = eps
         r["two_ion"] = bool(r.get("two_ion", True))
+        ion_seconds[name] = float(r.get("seconds", np.nan))
         # fiasco's Ion.free_free is per steradian (Phillips et al. 2008, eq. 4.114), unlike its free_bound,
         # two_photon and contribution_function, which are into 4 pi: bring it to 4 pi.
         r["ff"] = r["ff"] * FF_TO_FOUR_PI
@@ -507,5 +510,7 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
                           + "; single-ion model for: " + (" ".join(n for n in ions if not results[n]["two_ion"])
                                                           or "none")),
         "build_seconds_per_ion": json.dumps({k: round(v, 2) for k, v in timings.items()}),
+        "ion_compute_seconds": json.dumps({k: round(v, 2) for k, v in ion_seconds.items()}),
+        "build_wall_seconds_this_run": round(time.perf_counter() - t_start, 1),
     }
     return write_table(output, results, settings, elements, attrs)
