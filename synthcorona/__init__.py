@@ -6,6 +6,7 @@ The main path (tables, DEMs, synthesis, instruments) never imports fiasco; only
 from .abundances import AbundanceSet, available_sets, fip_bias, resolve_abundances, scale_metallicity
 from .dem import DEM, GaussianDEM, IsothermalDEM, MultiComponentDEM, PowerLawDEM, TabulatedDEM
 from .emissivity import EmissivityTable, load_emissivity
+from .instruments import Instrument, build_instrument, list_generic, load_generic, load_instrument
 from .synthesis import band_flux, luminosity, radiative_loss, synthesize
 from .tablefile import TableFileError
 from .validation import InputError
@@ -17,4 +18,5 @@ __all__ = [
     "DEM", "GaussianDEM", "IsothermalDEM", "MultiComponentDEM", "PowerLawDEM", "TabulatedDEM",
     "EmissivityTable", "load_emissivity", "band_flux", "luminosity", "radiative_loss", "synthesize",
     "TableFileError", "InputError",
+    "Instrument", "build_instrument", "list_generic", "load_generic", "load_instrument",
 ]

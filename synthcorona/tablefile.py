@@ -2,7 +2,8 @@
 
 Layout in ``docs/table_format.md``. Large arrays are stored as 16-bit integers of
 log10(value) (linear packing of the log between the variable's smallest kept and
-largest value), zlib-compressed; zero (and values below ``RELATIVE_FLOOR`` times
+largest value), delta-encoded along every axis but the first (exactly
+reversible), zlib-compressed; zero (and values below ``RELATIVE_FLOOR`` times
 the variable's maximum) is stored as the fill value -32768. The decode error is at
 most half a packing step, recorded per variable in ``attrs["storage_error"]``.
 
@@ -53,6 +54,28 @@ def _pack(values: np.ndarray) -> tuple[np.ndarray, float, float, float]:
     out[good] = np.round((lg - offset) / scale).astype(np.int16)
     rel_err = float(10 ** (0.5 * scale) - 1.0)
     return out, scale, offset, rel_err
+
+
+def _delta_encode(ints: np.ndarray, axes: tuple[int, ...]) -> np.ndarray:
+    """Successive first differences along ``axes`` in 16-bit wrap-around arithmetic (exactly reversible).
+
+    Emissivities vary smoothly along temperature, density and energy, so the differences are
+    small integers that zlib compresses far better than the values themselves.
+    """
+    d = np.array(ints, dtype=np.int16, copy=True)
+    for ax in axes:
+        sl = [slice(None)] * d.ndim
+        sl[ax] = slice(1, None)
+        d[tuple(sl)] = np.diff(d, axis=ax)
+    return d
+
+
+def _delta_decode(d: np.ndarray, axes: tuple[int, ...]) -> np.ndarray:
+    """Inverse of :func:`_delta_encode` (cumulative sums in reverse order, 16-bit wrap-around)."""
+    q = np.asarray(d, dtype=np.int16)
+    for ax in reversed(axes):
+        q = np.cumsum(q, axis=ax, dtype=np.int16)
+    return q
 
 
 def _unpack(ints: np.ndarray, scale: float, offset: float, dtype=np.float64) -> np.ndarray:
@@ -126,6 +149,7 @@ def write_table(output, results: dict, settings, elements: list[str], attrs: dic
     ds["mass_amu"] = ("element", mass, {"units": "u"})
     ds["fip_ev"] = ("element", fip, {"units": "eV"})
     errors = {}
+    chunks = {}
     for name, dims, arr, unit in (
         ("line_emissivity", ("line", "log_density", "logT"), eps, "erg cm3 s-1"),
         ("cont_ff", ("element", "logT", "energy"), ff, "erg cm3 s-1 keV-1"),
@@ -133,9 +157,13 @@ def write_table(output, results: dict, settings, elements: list[str], attrs: dic
         ("cont_2p", ("element", "log_density", "logT", "energy"), tp, "erg cm3 s-1 keV-1"),
     ):
         ints, scale, offset, err = _pack(arr)
-        ds[name] = (dims, ints, {"units": unit, "stored_as": "int16 log10 packing", "pack_scale": scale,
-                                 "pack_offset": offset, "fill": int(FILL)})
+        axes = tuple(range(ints.ndim - 1, 0, -1))  # every axis but the first, innermost first
+        ds[name] = (dims, _delta_encode(ints, axes),
+                    {"units": unit, "stored_as": "int16 log10 packing, delta-encoded", "pack_scale": scale,
+                     "pack_offset": offset, "fill": int(FILL), "delta_axes": " ".join(str(a) for a in axes)})
         errors[name] = err
+        chunks[name] = (min(4096, max(1, ints.shape[0])),) + ints.shape[1:] if name == "line_emissivity" \
+            else (1,) + ints.shape[1:]
     ds.attrs.update(attrs)
     ds.attrs["format"] = FORMAT_VERSION
     ds.attrs["storage_error"] = json.dumps({k: f"max relative decode error {v:.2e}" for k, v in errors.items()}
@@ -143,8 +171,7 @@ def write_table(output, results: dict, settings, elements: list[str], attrs: dic
     ds.attrs["content_hash"] = content_hash(ds)
     enc = {v: {"zlib": True, "complevel": 6, "shuffle": True} for v in ds.data_vars}
     for v in PACKED_VARS:
-        enc[v]["chunksizes"] = None
-    enc = {k: {kk: vv for kk, vv in e.items() if vv is not None} for k, e in enc.items()}
+        enc[v]["chunksizes"] = chunks[v]
     output.parent.mkdir(parents=True, exist_ok=True)
     tmp = output.with_name(output.name + ".partial")
     ds.to_netcdf(tmp, engine="h5netcdf", encoding=enc)
@@ -179,6 +206,8 @@ def read_table(path, verify: bool = True) -> xr.Dataset:
                                  f"{ds.attrs.get('content_hash')}, computed {got}): the file was altered or damaged")
     for name in PACKED_VARS:
         a = ds[name]
-        dec = _unpack(a.values, float(a.attrs["pack_scale"]), float(a.attrs["pack_offset"]))
-        ds[name] = (a.dims, dec, {k: v for k, v in a.attrs.items() if k not in ("stored_as", "fill")})
+        axes = tuple(int(x) for x in str(a.attrs.get("delta_axes", "")).split())
+        ints = _delta_decode(a.values, axes) if axes else a.values
+        dec = _unpack(ints, float(a.attrs["pack_scale"]), float(a.attrs["pack_offset"]))
+        ds[name] = (a.dims, dec, {k: v for k, v in a.attrs.items() if k not in ("stored_as", "fill", "delta_axes")})
     return ds

@@ -324,14 +324,6 @@ def test_bad_redistribution():
         Instrument("r", edges[:-1] * u.keV, edges[1:] * u.keV, [1, 1] * u.cm**2, redistribution=np.eye(2))
 
 
-def test_hooks_are_not_implemented():
-    inst, *_ = _stepped_instrument()
-    with pytest.raises(NotImplementedError, match="band_matrix"):
-        inst.temperature_response()
-    with pytest.raises(NotImplementedError):
-        inst.count_rate(None)
-
-
 def test_modules_do_not_import_fiasco():
     code = ("import sys, synthcorona.instruments.response, synthcorona.instruments.readers; "
             "assert 'fiasco' not in sys.modules")

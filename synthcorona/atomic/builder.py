@@ -253,7 +253,10 @@ def select_lines_windowed(wavelength: np.ndarray, eps: np.ndarray, fraction: flo
         bad = (w_tot >= significance * tot[None, :]) & (w_drop > window_fraction * w_tot)
         if not bad.any():
             break
-        for j, p in zip(*np.nonzero(bad)):
+        # restore, in each violating window, the strongest dropped line at its worst grid point
+        excess = np.where(bad, w_drop - window_fraction * w_tot, -np.inf)
+        for j in np.flatnonzero(bad.any(axis=1)):
+            p = int(np.argmax(excess[j]))
             seg = np.arange(lo[j], hi[j])
             cand = seg[~keep[seg]]
             if cand.size:

@@ -31,6 +31,7 @@ midpoint rule away from absorption edges to ~(1e-3 d ln T/d ln E)^2 / 24.
 from __future__ import annotations
 
 import json
+import weakref
 from collections import OrderedDict
 
 import numpy as np
@@ -117,7 +118,7 @@ def _line_layout(prep):
     """Line energies in ascending order and the matching index order (cached per prepared table)."""
     key = id(prep)
     hit = _LINE_ORDER_CACHE.get(key)
-    if hit is not None and hit[0] is prep:
+    if hit is not None and hit[0]() is prep:
         return hit[1], hit[2]
     e = prep.line_energy_kev
     if e.size > 1 and np.all(np.diff(e) <= 0):
@@ -127,7 +128,7 @@ def _line_layout(prep):
     e_sorted = np.ascontiguousarray(e[order])
     if len(_LINE_ORDER_CACHE) > _CACHE_SIZE:
         _LINE_ORDER_CACHE.clear()
-    _LINE_ORDER_CACHE[key] = (prep, order, e_sorted)
+    _LINE_ORDER_CACHE[key] = (weakref.ref(prep), order, e_sorted)
     return order, e_sorted
 
 
@@ -168,7 +169,7 @@ def binned_emissivity(edges_kev: np.ndarray, prep, photons: bool = True, nh: flo
     ikey = ism_key(ism_abundances) if nh_eff else None
     key = (id(prep), hash(edges.tobytes()), edges.size, bool(photons), nh_eff, ikey)
     hit = _MATRIX_CACHE.get(key)
-    if hit is not None and hit[0] is prep:
+    if hit is not None and hit[0]() is prep:
         _MATRIX_CACHE.move_to_end(key)
         return hit[1]
     if nh_eff:
@@ -201,7 +202,7 @@ def binned_emissivity(edges_kev: np.ndarray, prep, photons: bool = True, nh: flo
             sums = np.add.reduceat(vals, starts, axis=0)        # (n_occupied, T)
             out[:, idx[starts]] += sums.T
     out.setflags(write=False)
-    _MATRIX_CACHE[key] = (prep, out)
+    _MATRIX_CACHE[key] = (weakref.ref(prep), out)   # weak: never keeps a prepared table alive
     if len(_MATRIX_CACHE) > _CACHE_SIZE:
         _MATRIX_CACHE.popitem(last=False)
     return out

@@ -44,6 +44,7 @@ from __future__ import annotations
 import copy
 import hashlib
 import json
+import weakref
 from collections import OrderedDict
 
 import numpy as np
@@ -302,6 +303,7 @@ class Instrument:
         for bname, bval in (bands or {}).items():
             self._bands[str(bname)] = self._validate_band(f"bands['{bname}']", bval)
         self._cache: OrderedDict = OrderedDict()
+        self._kcache: OrderedDict = OrderedDict()   # temperature responses, see _response_kernel
 
     # ------------------------------------------------------------------ constructors
     @classmethod
@@ -844,8 +846,14 @@ class Instrument:
 
     def _response_kernel(self, prep, blist, nh: float | None, ism_abundances, input_grid):
         """Temperature responses (n_bands, n_T) in counts s^-1 per cm^-3 of EM at 1 pc, and the grid text."""
-        from .observables import _FOUR_PI_PC2, binned_emissivity
+        from .observables import _FOUR_PI_PC2, binned_emissivity, ism_key
 
+        if input_grid is None:
+            kkey = (id(prep), nh, ism_key(ism_abundances) if nh else None, tuple((b[1], b[2]) for b in blist))
+            hit = self._kcache.get(kkey)
+            if hit is not None and hit[0]() is prep:
+                self._kcache.move_to_end(kkey)
+                return hit[1]
         edges, grid_desc = self._response_edges(prep, blist, nh, input_grid)
         eq = edges * u.keV
         try:
@@ -865,7 +873,13 @@ class Instrument:
             raise
         B = np.vstack(rows)                                                            # (n_b, n_in) cm^2
         E = binned_emissivity(edges, prep, photons=True, nh=nh, ism_abundances=ism_abundances)   # (n_T, n_in)
-        K = (B @ E.T) / _FOUR_PI_PC2
+        # einsum, not B @ E.T: OpenBLAS takes ~100x longer on this short-wide product on some machines
+        K = np.einsum("bi,ti->bt", B, E) / _FOUR_PI_PC2
+        K.setflags(write=False)
+        if input_grid is None:
+            self._kcache[kkey] = (weakref.ref(prep), (K, grid_desc, edges))   # weak: prepared tables are large
+            if len(self._kcache) > _CACHE_SIZE:
+                self._kcache.popitem(last=False)
         return K, grid_desc, edges
 
     def _response_attrs(self, prep, nh, ism_abundances, grid_desc, edges) -> dict:
