@@ -53,7 +53,7 @@ def main():
           f"{'MET' if t_syn < 0.2 else 'NOT MET'}")
     rng = np.random.default_rng(1)
     n = 10_000
-    dems = sc.GaussianDEM(rng.uniform(6.0, 7.2, n), rng.uniform(0.05, 0.3, n), rng.uniform(1e50, 1e52, n) * u.cm ** -3)
+    dems = sc.GaussianDEM(rng.uniform(6.0, 7.0, n), rng.uniform(0.05, 0.3, n), rng.uniform(1e50, 1e52, n) * u.cm ** -3)
     band = (0.1, 2.4) * u.keV
     sc.band_flux(dems, band=band, distance=10 * u.pc, table=table)
     t_bf = best_of(lambda: sc.band_flux(dems, band=band, distance=10 * u.pc, table=table))

@@ -12,6 +12,7 @@ Targets: detection_probability from 10,000 realisations of 1000 bins < 2 s for e
 peak memory of the 1e6 x 1000 run (chunked) < 2 GB.
 """
 import argparse
+import math
 import resource
 import time
 import tracemalloc
@@ -23,13 +24,19 @@ from scipy import optimize, special, stats
 CTS = u.ct / u.s
 
 
+CPU = {}
+
+
 def best_of(fn, n=3):
-    ts = []
+    """Best wall time of n runs (CPU time of that run in CPU["last"]: on a shared machine the
+    wall time includes waiting for the CPU, the process CPU time does not)."""
+    best = (math.inf, 0.0)
     for _ in range(n):
-        t0 = time.perf_counter()
+        t0, c0 = time.perf_counter(), time.process_time()
         out = fn()
-        ts.append(time.perf_counter() - t0)
-    return min(ts), out
+        best = min(best, (time.perf_counter() - t0, time.process_time() - c0))
+    CPU["last"] = best[1]
+    return best[0], out
 
 
 def light_curves(n_bins=1000):
@@ -95,12 +102,14 @@ def main():
 
     t_win, ds_w = best_of(lambda: detection_probability(with_ * CTS, without * CTS, 1 * u.s, windows=win,
                                                         n_realisations=n, seed=1))
-    print(f"window statistic:     {t_win:6.3f} s   target < 2 s  {'MET' if t_win < 2 else 'NOT MET'}   "
+    print(f"window statistic:     {t_win:6.3f} s (CPU {CPU['last']:.3f} s)   target < 2 s  "
+          f"{'MET' if t_win < 2 else 'NOT MET'}   "
           f"P = {float(ds_w.probability):.4f} +- {float(ds_w.probability_error):.4f}, "
           f"threshold {float(ds_w.threshold):.3f} sigma, sampler {ds_w.attrs['sampler']}")
     t_lik, ds_l = best_of(lambda: detection_probability(with_ * CTS, without * CTS, 1 * u.s, statistic="likelihood",
                                                         n_realisations=n, seed=1))
-    print(f"likelihood statistic: {t_lik:6.3f} s   target < 2 s  {'MET' if t_lik < 2 else 'NOT MET'}   "
+    print(f"likelihood statistic: {t_lik:6.3f} s (CPU {CPU['last']:.3f} s)   target < 2 s  "
+          f"{'MET' if t_lik < 2 else 'NOT MET'}   "
           f"P = {float(ds_l.probability):.4f} +- {float(ds_l.probability_error):.4f}, "
           f"threshold TS {float(ds_l.threshold):.3f}, sampler {ds_l.attrs['sampler']}")
     rn = (0.02, 200 * u.s)

@@ -59,7 +59,15 @@ class EmissivityTable:
         self.line_ion = np.asarray(ds["line_ion"].values, dtype=int)
         self.line_upper = np.asarray(ds["line_upper"].values, dtype=int)
         self.line_lower = np.asarray(ds["line_lower"].values, dtype=int)
-        self._line_eps = np.asarray(ds["line_emissivity"].values)  # (line, n, T)
+        le = ds["line_emissivity"]
+        if np.issubdtype(le.dtype, np.integer):  # lazily decoded int16 log10 codes
+            self._line_q = np.asarray(le.values)
+            self._line_pack = (float(le.attrs["pack_scale"]), float(le.attrs["pack_offset"]))
+            self._line_eps_full = None
+        else:
+            self._line_q = None
+            self._line_eps_full = np.asarray(le.values)  # (line, n, T)
+        self._line_planes: dict = {}
         self._ff = np.asarray(ds["cont_ff"].values)  # (el, T, E)
         self._fb = np.asarray(ds["cont_fb"].values)
         self._tp = np.asarray(ds["cont_2p"].values)  # (el, n, T, E)
@@ -181,11 +189,36 @@ class EmissivityTable:
         out = np.where(finite, out, np.nan)
         return out  # (..., T)
 
+    def _line_plane(self, k: int) -> np.ndarray:
+        """Decoded line emissivities at table density index ``k``, (n_lines, n_T) float32 (cached)."""
+        if self._line_eps_full is not None:
+            return self._line_eps_full[:, k, :]
+        if k not in self._line_planes:
+            from .tablefile import decode
+
+            self._line_planes[k] = decode(np.ascontiguousarray(self._line_q[:, k, :]), *self._line_pack)
+        return self._line_planes[k]
+
     def line_emissivity(self, log_n: np.ndarray) -> np.ndarray:
-        """Line emissivities per unit abundance at n_e(T) = 10**log_n, shape (n_lines, n_T) [erg cm3 s-1]."""
+        """Line emissivities per unit abundance at n_e(T) = 10**log_n, shape (n_lines, n_T) [erg cm3 s-1].
+
+        Only the table density planes bracketing the requested densities are decoded.
+        """
         key = ("lines", log_n.tobytes())
         if key not in self._cache:
-            self._cache[key] = self._interp_density(self._line_eps, log_n, 1, 2)
+            finite = np.isfinite(log_n)
+            i, w = self._density_weights("density", np.where(finite, log_n, self.log_density[0]))
+            planes = {k: self._line_plane(k) for k in np.unique(np.concatenate([i, i + 1]))}
+            t = np.arange(self.logT.size)
+            a0 = np.empty((self.line_wavelength.size, t.size))
+            a1 = np.empty_like(a0)
+            for k, plane in planes.items():
+                a0[:, i == k] = plane[:, t[i == k]]
+                a1[:, i + 1 == k] = plane[:, t[i + 1 == k]]
+            with np.errstate(divide="ignore", invalid="ignore"):
+                out = np.where((a0 > 0) & (a1 > 0), a0 ** (1 - w) * a1 ** w,
+                               np.where(w == 0, a0, np.where(w == 1, a1, 0.0)))
+            self._cache[key] = np.where(finite, out, np.nan)
         return self._cache[key]
 
     def continuum(self, log_n: np.ndarray) -> np.ndarray:
@@ -201,8 +234,10 @@ class EmissivityTable:
         return {"ff": self._ff, "fb": self._fb, "2p": self._tp}
 
     def line_emissivity_grid(self) -> np.ndarray:
-        """Raw line emissivities (n_lines, n_density, n_T) [erg cm3 s-1] per unit abundance."""
-        return self._line_eps
+        """Raw line emissivities (n_lines, n_density, n_T) [erg cm3 s-1] per unit abundance (decodes all)."""
+        if self._line_eps_full is None:
+            self._line_eps_full = np.stack([self._line_plane(k) for k in range(self.log_density.size)], axis=1)
+        return self._line_eps_full
 
 
 def _default_path() -> pathlib.Path:
@@ -211,7 +246,7 @@ def _default_path() -> pathlib.Path:
 
 @functools.lru_cache(maxsize=4)
 def _load_cached(path: str, mtime_ns: int, size: int) -> EmissivityTable:
-    return EmissivityTable(read_table(path, verify=True), path)
+    return EmissivityTable(read_table(path, verify=True, lazy=("line_emissivity",)), path)
 
 
 def load_emissivity(path=None) -> EmissivityTable:

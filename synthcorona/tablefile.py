@@ -79,11 +79,17 @@ def _delta_decode(d: np.ndarray, axes: tuple[int, ...]) -> np.ndarray:
 
 
 def _unpack(ints: np.ndarray, scale: float, offset: float, dtype=np.float64) -> np.ndarray:
-    """Inverse of :func:`_pack` (fill value → 0)."""
-    out = np.zeros(ints.shape, dtype=dtype)
-    good = ints != FILL
-    out[good] = 10.0 ** (ints[good].astype(np.float64) * scale + offset)
-    return out
+    """Inverse of :func:`_pack` (fill value → 0), through a 65 536-entry look-up table."""
+    lut = 10.0 ** (np.arange(-32768, 32768, dtype=np.float64) * scale + offset)
+    lut[0] = 0.0  # FILL = -32768 maps to index 0
+    lut = lut.astype(dtype)
+    idx = np.asarray(ints, dtype=np.int32) + 32768 if ints.dtype != np.uint16 else ints
+    return np.take(lut, idx)
+
+
+def decode(ints: np.ndarray, scale: float, offset: float, dtype=np.float32) -> np.ndarray:
+    """Decode int16 log10 codes (from ``read_table(..., lazy=...)``) to values (fill → 0)."""
+    return _unpack(ints, scale, offset, dtype=dtype)
 
 
 def content_hash(ds: xr.Dataset) -> str:
@@ -179,8 +185,11 @@ def write_table(output, results: dict, settings, elements: list[str], attrs: dic
     return output
 
 
-def read_table(path, verify: bool = True) -> xr.Dataset:
+def read_table(path, verify: bool = True, lazy: tuple = ()) -> xr.Dataset:
     """Read a table file, verify its content hash, and decode packed arrays to float.
+
+    Variables named in ``lazy`` are left as int16 log10 codes (delta decoding done) with
+    their ``pack_scale``/``pack_offset`` attributes; decode them with :func:`decode`.
 
     Raises :class:`TableFileError` naming the file if it is missing, unreadable,
     not a synthcorona table, or fails the hash check.
@@ -208,6 +217,10 @@ def read_table(path, verify: bool = True) -> xr.Dataset:
         a = ds[name]
         axes = tuple(int(x) for x in str(a.attrs.get("delta_axes", "")).split())
         ints = _delta_decode(a.values, axes) if axes else a.values
-        dec = _unpack(ints, float(a.attrs["pack_scale"]), float(a.attrs["pack_offset"]))
+        if name in lazy:
+            ds[name] = (a.dims, ints, {k: v for k, v in a.attrs.items() if k not in ("delta_axes",)})
+            continue
+        dec = _unpack(ints, float(a.attrs["pack_scale"]), float(a.attrs["pack_offset"]),
+                      dtype=np.float32 if name == "line_emissivity" else np.float64)
         ds[name] = (a.dims, dec, {k: v for k, v in a.attrs.items() if k not in ("stored_as", "fill", "delta_axes")})
     return ds

@@ -7,7 +7,7 @@ import synthcorona as sc
 
 
 def test_density_interpolation_exact_at_nodes_and_loglog_between(table):
-    raw = table.line_emissivity_grid()  # (line, n, T)
+    raw = table.line_emissivity_grid().astype(np.float64)  # (line, n, T); decoded as float32
     i = int(np.argmax(raw[:, 2, 30]))
     for k, logn in enumerate(table.log_density):
         got = table.line_emissivity(np.full(table.logT.size, logn))

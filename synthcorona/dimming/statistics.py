@@ -331,6 +331,7 @@ def _lr_fit(n, B, D, fit_scale, max_iter=50, tol=1e-8) -> LikelihoodRatio:
     SB, SD, Q = float(B.sum()), float(D.sum()), float(np.sum(D * r))
     R2 = np.stack([np.ones(m), r], axis=1)
     R3 = np.stack([np.ones(m), r, r * r], axis=1)
+    P = np.ascontiguousarray(np.stack([np.ones(m), -r]))  # s = [a, delta] @ P in one BLAS pass
     N = n.sum(axis=1)
     ok = N > 0 if fit_scale else np.ones(k, dtype=bool)
     a0 = np.where(ok, N / SB, 0.0) if fit_scale else np.ones(k)
@@ -361,8 +362,7 @@ def _lr_fit(n, B, D, fit_scale, max_iter=50, tol=1e-8) -> LikelihoodRatio:
             break
         nn = n if act.size == k else n[act]
         aa, dd_ = a[act], d[act]
-        s_ = np.multiply.outer(dd_, -r)
-        s_ += aa[:, None]
+        s_ = np.column_stack([aa, dd_]) @ P
         w = np.divide(nn, s_)
         g1, gr = (w @ R2).T
         w /= s_
@@ -409,8 +409,7 @@ def _lr_fit(n, B, D, fit_scale, max_iter=50, tol=1e-8) -> LikelihoodRatio:
     pos = np.flatnonzero(ok & (d > 0))
     if pos.size:
         ap, dp = a[pos], d[pos]
-        X = np.multiply.outer(dp, -r)
-        X += ap[:, None]
+        X = np.column_stack([ap, dp]) @ P
         np.log(X, out=X)
         lnl = np.einsum("ij,ij->i", n[pos] if pos.size < k else n, X)
         del X
