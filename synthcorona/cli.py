@@ -72,7 +72,8 @@ def _cmd_table_info(args) -> int:
 
     t = load_emissivity(args.table)
     print(repr(t))
-    for k in ("chianti_version", "chianti_provenance", "fiasco_version", "ioneq", "elements", "line_threshold",
+    for k in ("chianti_version", "chianti_provenance", "chianti_substituted_ions", "fiasco_version", "ioneq",
+              "elements", "line_threshold",
               "lines_kept", "two_ion_model", "build_date", "content_hash", "storage_error"):
         if k in t.provenance:
             print(f"{k}: {t.provenance[k]}")

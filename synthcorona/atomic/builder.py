@@ -402,6 +402,14 @@ def proton_electron_ratio(h5: pathlib.Path, logT: np.ndarray, work: pathlib.Path
     return ratio
 
 
+def _substitution_note(sub: dict, ions: list[str]) -> str:
+    """Text listing the ions of this build whose level-resolved CHIANTI files come from an older release."""
+    used = [f"{n} {sub[n]}" for n in ions if n in sub]
+    if not used:
+        return "none (all ions from the release named in chianti_version)"
+    return "level-resolved files from an older release: " + "; ".join(used)
+
+
 def build_table(output, chianti=None, settings: BuildSettings | None = None, jobs: int = 1,
                 work_dir=None, progress: bool = True, **kwargs) -> pathlib.Path:
     """Build an emissivity table file from a CHIANTI database (resumable, parallel).
@@ -492,6 +500,7 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
         "chianti_version": src.version,
         "chianti_origin": src.origin,
         "chianti_provenance": src.provenance_note or "no PROVENANCE.md found beside the database",
+        "chianti_substituted_ions": _substitution_note(locate.substituted_ions(src), ions),
         "fiasco_version": fiasco.__version__,
         "ioneq": "chianti (CHIANTI default equilibrium file chianti.ioneq of the database above)",
         "proton_electron_ratio": "fiasco.proton_electron_ratio (Young et al. 2003 eq. 7), fiasco default "

@@ -126,6 +126,31 @@ def _check_tree(root: pathlib.Path, origin: str, tried: list[str]) -> ChiantiSou
     return ChiantiSource(root, version, origin, _provenance_summary(root))
 
 
+def substituted_ions(source: ChiantiSource) -> dict:
+    """Ions whose level-resolved files come from another release than the tree's VERSION.
+
+    Read from a ``COMPOSITE_MANIFEST.tsv`` (path, source tag, ...) at the top of the tree, as
+    shipped with composite CHIANTI copies; an ordinary release has none and gives ``{}``.
+    Returns {ion name (e.g. "fe_12"): source tag (e.g. "v7.0.0")}.
+    """
+    man = source.root / "COMPOSITE_MANIFEST.tsv"
+    if not man.is_file():
+        return {}
+    own = "v" + source.version
+    out = {}
+    for line in man.read_text(errors="replace").splitlines():
+        if not line or line.startswith("#"):
+            continue
+        parts = line.split("\t")
+        if len(parts) < 2:
+            continue
+        path, tag = parts[0], parts[1]
+        bits = path.split("/")
+        if len(bits) == 3 and tag != own and bits[1].startswith(bits[0] + "_"):
+            out.setdefault(bits[1], tag)
+    return out
+
+
 def find_chianti(path=None) -> ChiantiSource:
     """Locate an ASCII CHIANTI database (argument > ``SYNTHCORONA_CHIANTI`` > fiasco's configuration).
 
