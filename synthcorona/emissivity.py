@@ -60,9 +60,9 @@ class EmissivityTable:
         self.line_upper = np.asarray(ds["line_upper"].values, dtype=int)
         self.line_lower = np.asarray(ds["line_lower"].values, dtype=int)
         le = ds["line_emissivity"]
-        if np.issubdtype(le.dtype, np.integer):  # lazily decoded int16 log10 codes
+        if np.issubdtype(le.dtype, np.integer):  # stored codes, decoded one density plane at a time
             self._line_q = np.asarray(le.values)
-            self._line_pack = (float(le.attrs["pack_scale"]), float(le.attrs["pack_offset"]))
+            self._line_attrs = dict(le.attrs)
             self._line_eps_full = None
         else:
             self._line_q = None
@@ -194,9 +194,9 @@ class EmissivityTable:
         if self._line_eps_full is not None:
             return self._line_eps_full[:, k, :]
         if k not in self._line_planes:
-            from .tablefile import decode
+            from .tablefile import decode_plane
 
-            self._line_planes[k] = decode(np.ascontiguousarray(self._line_q[:, k, :]), *self._line_pack)
+            self._line_planes[k] = decode_plane(self._line_q, self._line_attrs, k)
         return self._line_planes[k]
 
     def line_emissivity(self, log_n: np.ndarray) -> np.ndarray:

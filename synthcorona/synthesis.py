@@ -123,6 +123,14 @@ class _Prepared:
         ck, ck1 = c[:, k], c[:, k + 1]
         return cum[:, k] + ck * t + 0.5 * (ck1 - ck) * t * t / h
 
+    def line_cumulative(self, photons: bool) -> np.ndarray:
+        """Cumulative sums of line values in ascending photon energy, (L+1, T); computed once per kernel set."""
+        key = "cum_ph" if photons else "cum_e"
+        if key not in self.__dict__:
+            lines = self.line_values(photons)
+            self.__dict__[key] = np.concatenate([np.zeros((1, lines.shape[1])), np.cumsum(lines[::-1], axis=0)])
+        return self.__dict__[key]
+
     def line_values(self, photons: bool) -> np.ndarray:
         """Per-line power (erg cm3 s-1) or photon rate (photons cm3 s-1), shape (L, T)."""
         if photons:
@@ -190,8 +198,7 @@ def band_kernel(bands_kev: np.ndarray, prep: _Prepared, photons: bool = False) -
     ndarray (n_b, n_T) in erg cm3 s-1 (or photons cm3 s-1 with ``photons``) per unit EM.
     """
     bands_kev = np.atleast_2d(bands_kev)
-    lines = prep.line_values(photons)
-    ecum = np.concatenate([np.zeros((1, lines.shape[1])), np.cumsum(lines[::-1], axis=0)])  # ascending energy
+    ecum = prep.line_cumulative(photons)  # (L+1, T), lines in ascending energy
     e_line = prep.line_energy_kev[::-1]
     i0 = np.searchsorted(e_line, bands_kev[:, 0], side="left")
     i1 = np.searchsorted(e_line, bands_kev[:, 1], side="left")

@@ -83,13 +83,26 @@ def _unpack(ints: np.ndarray, scale: float, offset: float, dtype=np.float64) -> 
     lut = 10.0 ** (np.arange(-32768, 32768, dtype=np.float64) * scale + offset)
     lut[0] = 0.0  # FILL = -32768 maps to index 0
     lut = lut.astype(dtype)
-    idx = np.asarray(ints, dtype=np.int32) + 32768 if ints.dtype != np.uint16 else ints
+    # int16 code c -> table index c + 32768, computed as the uint16 view with the sign bit flipped (no temporaries)
+    idx = np.ascontiguousarray(ints, dtype=np.int16).view(np.uint16) ^ np.uint16(0x8000)
     return np.take(lut, idx)
 
 
-def decode(ints: np.ndarray, scale: float, offset: float, dtype=np.float32) -> np.ndarray:
-    """Decode int16 log10 codes (from ``read_table(..., lazy=...)``) to values (fill → 0)."""
-    return _unpack(ints, scale, offset, dtype=dtype)
+def decode_plane(stored: np.ndarray, attrs: dict, k: int, dtype=np.float32) -> np.ndarray:
+    """Values of plane ``k`` along axis 1 of a lazily read 3-D packed array (``read_table(..., lazy=...)``).
+
+    For the layout written here (delta axes "2 1": differences along axis 2, then axis 1),
+    plane k of the codes is the wrap-around sum of the first k+1 stored planes, cumulated
+    along axis 2; other layouts are decoded whole.
+    """
+    axes = tuple(int(x) for x in str(attrs.get("delta_axes", "")).split())
+    if axes == (2, 1):
+        codes = np.cumsum(np.sum(stored[:, : k + 1, :], axis=1, dtype=np.int16), axis=1, dtype=np.int16)
+    elif not axes:
+        codes = np.ascontiguousarray(stored[:, k, :])
+    else:
+        codes = np.ascontiguousarray(_delta_decode(stored, axes)[:, k, :])
+    return _unpack(codes, float(attrs["pack_scale"]), float(attrs["pack_offset"]), dtype=dtype)
 
 
 def content_hash(ds: xr.Dataset) -> str:
@@ -216,10 +229,10 @@ def read_table(path, verify: bool = True, lazy: tuple = ()) -> xr.Dataset:
     for name in PACKED_VARS:
         a = ds[name]
         axes = tuple(int(x) for x in str(a.attrs.get("delta_axes", "")).split())
-        ints = _delta_decode(a.values, axes) if axes else a.values
-        if name in lazy:
-            ds[name] = (a.dims, ints, {k: v for k, v in a.attrs.items() if k not in ("delta_axes",)})
+        if name in lazy:  # left delta-encoded: decode_plane() undoes it one density plane at a time
+            ds[name] = (a.dims, a.values, dict(a.attrs))
             continue
+        ints = _delta_decode(a.values, axes) if axes else a.values
         dec = _unpack(ints, float(a.attrs["pack_scale"]), float(a.attrs["pack_offset"]),
                       dtype=np.float32 if name == "line_emissivity" else np.float64)
         ds[name] = (a.dims, dec, {k: v for k, v in a.attrs.items() if k not in ("stored_as", "fill", "delta_axes")})

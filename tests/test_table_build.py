@@ -131,11 +131,18 @@ def test_build_is_resumable_and_records_provenance(small_build, built):
 
     ds = xr.open_dataset(again, engine="h5netcdf")
     assert json.loads(ds.attrs["build_seconds_per_ion"]) == {}  # nothing recomputed: all ions from the work dir
-    for key in ("chianti_version", "chianti_provenance", "fiasco_version", "ioneq", "elements", "line_threshold",
-                "build_date", "content_hash"):
+    for key in ("chianti_version", "chianti_provenance", "chianti_substituted_ions", "fiasco_version", "ioneq",
+                "elements", "line_threshold", "build_date", "content_hash"):
         assert key in built.provenance
     assert built.provenance["chianti_version"] == "10.1"
-    assert "older releases" in built.provenance["chianti_provenance"] or "10.1" in built.provenance["chianti_provenance"]
+    # the composite copy's manifest (PROVENANCE.md of ../shared/chianti: Fe XII comes from release 7.0.0)
+    from synthcorona.atomic import locate
+
+    src = locate.find_chianti(small_build["chianti"])
+    if (src.root / "COMPOSITE_MANIFEST.tsv").is_file():
+        assert "fe_12 v7.0.0" in built.provenance["chianti_substituted_ions"]
+    else:
+        assert built.provenance["chianti_substituted_ions"].startswith("none")
 
 
 def test_missing_chianti_error_says_where_it_looked(tmp_path, monkeypatch):
