@@ -50,14 +50,16 @@ def main():
     for _ in range(200):
         model(times, mass=5e17, t0=1.1e4, recovery_time=8e3, flare_scale=1.0)
     n = 5000
-    per_call = []
+    per_call, cpu = [], []
     for _ in range(5):
-        t0 = time.perf_counter()
+        t0, c0 = time.perf_counter(), time.process_time()
         for _ in range(n):
             model(times, mass=5e17, t0=1.1e4, recovery_time=8e3, flare_scale=1.0)
         per_call.append((time.perf_counter() - t0) / n)
+        cpu.append((time.process_time() - c0) / n)
     print(f"fitting model, {times.size} bins x {len(sc.labels)} bands: {1e6 * min(per_call):.1f} us per call "
-          f"(median {1e6 * float(np.median(per_call)):.1f} us; target < 100 us)")
+          f"(median {1e6 * float(np.median(per_call)):.1f} us wall, best {1e6 * min(cpu):.1f} us CPU; "
+          f"target < 100 us)")
     counts = sc.light_curve(n_realisations=1, seed=1).counts.values[0]
     t0 = time.perf_counter()
     for _ in range(2000):

@@ -265,3 +265,66 @@ def test_confined_eruption_has_no_dimming():
     assert float(s.depth().depth.values[0]) == 0.0
     with pytest.raises(InputError, match="confined"):
         s.minimum_detectable_mass()
+
+
+def test_density_from_loop_scaling_law():
+    # no density given: Rosner, Tucker & Vaiana (1978) at the 1.5 MK source temperature and 1e10 cm loops,
+    # 2.970e8 cm-3 (hand value, see test_rtv_density); the depth scales with n_e (Delta EM = n_e M / (mu_H m_H))
+    s = DimmingScenario(Star(1 * u.AU), Corona(SUN_DEM), CME(1e15 * u.g), None, "sc-euv171",
+                        Observation(6 * u.h, 60 * u.s, 1 * u.h))
+    assert s.density == pytest.approx(2.970e8, rel=2e-3)
+    assert "Rosner" in s.depth().attrs["source_density_from"]
+
+
+def test_model_and_scenario_refuse_impossible_masses(star):
+    model = DimmingLightCurveModel(star)
+    t = np.arange(100) * 60.0 + 30.0
+    with pytest.raises(InputError, match="mass"):
+        model(t, mass=2 * star.max_mass)
+    with pytest.raises(InputError, match="contiguous"):
+        model(np.array([30.0, 90.0, 300.0]))
+    with pytest.raises(InputError, match="largest removable mass"):
+        _star(mass=2 * star.max_mass)
+
+
+def test_expansion_dimming_em_change():
+    # Adiabatic expansion by volume factor s (Aschwanden 2009, Ann. Geophys. 27, 3275, from memory): EM ~ N^2/V
+    # falls by 1/s, T V^(gamma-1) = const cools by (2/3) log10 s dex (textbook adiabatic law, gamma = 5/3).
+    from synthcorona.dimming import expansion_emission_measure_change
+
+    x = np.round(np.linspace(4.5, 8.5, 81), 10)
+    q = SUN_DEM.em_weights(x).value
+    src = 1.5e6 * u.K
+    win = np.abs(x - np.log10(1.5e6)) <= 0.15 + 1e-9
+    em_win = q[win].sum()
+    assert np.all(expansion_emission_measure_change(x, q, src, 1.0) == 0)
+    s, phi = 2.0, 0.5
+    d = expansion_emission_measure_change(x, q, src, s, fraction=phi)
+    assert d.sum() == pytest.approx(-phi * em_win * (1 - 1 / s), rel=1e-12)
+    added = d + np.where(win, phi * q, 0.0)                    # what was put back, at cooler nodes
+    mean_before = np.sum(x[win] * q[win]) / em_win
+    mean_after = np.sum(x * added) / added.sum()
+    assert mean_after - mean_before == pytest.approx(-(2.0 / 3.0) * math.log10(s), abs=1e-9)
+    with pytest.raises(InputError, match="volume_factor"):
+        expansion_emission_measure_change(x, q, src, 0.5)
+
+
+def test_expansion_in_scenario_and_model():
+    # soft X-rays (0.2-1 keV) from 1-2 MK plasma rise steeply with T (common knowledge), so expansion (less EM,
+    # cooler) must deepen the dimming there; an EUV band may instead brighten when the plasma cools into its peak.
+    bands = ["sc-euv193", ("sc-sxt", "soft")]
+    kw = dict(source_temperature=2e6 * u.K)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        s = DimmingScenario(Star(2 * u.pc, nh=1e17 * u.cm ** -2), Corona(STAR_DEM, density=1e9 * u.cm ** -3),
+                            CME(1e17 * u.g, **kw), None, bands, Observation(10 * u.h, 60 * u.s, 2 * u.h))
+        sx = DimmingScenario(s.star, s.corona, CME(1e17 * u.g, expansion_factor=1.5, expanding_fraction=0.3, **kw),
+                             None, bands, s.observation)
+    d0, dx = s.depth().depth.values, sx.depth().depth.values
+    assert dx[1] > d0[1] + 0.01
+    # the expansion term is exactly -(K . Delta EM_exp) / (K . EM) per band, added to the mass-loss depth
+    np.testing.assert_allclose(dx - d0, -(sx.kernel @ sx.expansion_change) / (sx.kernel @ sx.quiescent_weights),
+                               rtol=1e-9)
+    lc = sx.light_curve()
+    np.testing.assert_allclose(DimmingLightCurveModel(sx)(lc.time.values), lc.expected.values, rtol=1e-9)
+    assert sx.max_mass.value == pytest.approx(0.7 * s.max_mass.value, rel=1e-9)

@@ -5,10 +5,10 @@ r"""Fast parametric dimming light-curve model for fitting observed light curves.
 CME mass, the flare-excess running integrals and the profile constants are precomputed, so an
 evaluation is a handful of vectorised numpy operations over (bands, bins):
 
-.. math:: r_b(t_i) = q_b\,[1 - m\, d_b\, \bar p_i(t_0, \tau)] + s\, \bar F_b(t_i - t_0),
+.. math:: r_b(t_i) = q_b\,[1 - (m\, d_b + x_b)\, \bar p_i(t_0, \tau)] + s\, \bar F_b(t_i - t_0),
 
 with mass :math:`m`, onset :math:`t_0`, recovery time :math:`\tau`, flare scale :math:`s`,
-depth per gram :math:`d_b` and bin averages exactly as in :meth:`DimmingScenario.light_curve`
+depth per gram :math:`d_b`, the scenario's (fixed) expansion-dimming depth :math:`x_b` and bin averages exactly as in :meth:`DimmingScenario.light_curve`
 (same functions, so the two agree to round-off).
 
 The Poisson log-likelihood of binned counts :math:`n_{bi}` is the C-statistic of Cash
@@ -23,7 +23,7 @@ import numpy as np
 import astropy.units as u
 from scipy.special import xlogy
 
-from ..validation import InputError, as_quantity, check_range
+from ..validation import InputError
 
 __all__ = ["DimmingLightCurveModel"]
 
@@ -48,6 +48,11 @@ class DimmingLightCurveModel:
     bins of ``bin_width`` (default the scenario's). Parameters may be Quantities or plain
     floats in g and s. Returns a float64 array (n_bands, n_times) in ct/s (plain numbers for
     speed; :meth:`rates` returns the same as a Quantity). Defaults are the scenario's values.
+    ``times`` must be the centres of contiguous bins of equal width (checked from their span).
+    The flare excess is zero before ``t0`` and after the end of the scenario's flare run (which
+    covers the scenario's light curve from any ``t0`` >= 0, or stops early; see
+    ``attrs["flare_termination"]``). A mass above the largest removable mass raises
+    :class:`~synthcorona.validation.InputError`.
     """
 
     def __init__(self, scenario):
@@ -59,6 +64,8 @@ class DimmingLightCurveModel:
         self.quiescent_rate = scenario.quiescent_rate.copy()
         self.depth_per_gram = scenario.depth_per_gram.copy()
         self._qd = self.quiescent_rate * self.depth_per_gram
+        self._qx = self.quiescent_rate * scenario.expansion_depth     # expansion dimming (0 unless enabled)
+        self._q_col = self.quiescent_rate[:, None]
         self.onset = scenario.onset
         self.recovery_time = scenario.recovery_time
         self.t0 = scenario.t0
@@ -102,22 +109,16 @@ class DimmingLightCurveModel:
         s = e - t0
         n = s.size - 1
         s0 = float(s[0])
-        out = np.empty((self._qd.size, n))
-        out[:] = self.quiescent_rate[:, None]
-        # dimming: the profile integral P(t) (profile.profile_integral, inlined) is 0 before t0, so only
-        # bins ending after t0 are computed (uniform contiguous bins: the first index is arithmetic)
-        k = min(max(int(math.floor(-s0 / bw)) - 1, 0), n)
-        if k < n:
-            sk = s[k:]
-            a = self.onset
-            if a > 0:
-                c = np.minimum(np.maximum(sk, 0.0), a)
-                P = c * c * (0.5 / a)
-            else:
-                P = 0.0
-            P = P - tau * np.expm1(np.maximum(sk - a, 0.0) * (-1.0 / tau))
-            p = (P[1:] - P[:-1]) * (1.0 / bw)
-            out[:, k:] -= (m * self._qd)[:, None] * p
+        # dimming: bin averages of the profile from its closed-form integral P(t) (profile.profile_integral,
+        # inlined); the 1/bin_width is folded into the per-band coefficient
+        a = self.onset
+        if a > 0:
+            c = np.minimum(np.maximum(s, 0.0), a)
+            P = c * c * (0.5 / a) - tau * np.expm1(np.maximum(s - a, 0.0) * (-1.0 / tau))
+        else:
+            P = -tau * np.expm1(np.maximum(s, 0.0) * (-1.0 / tau))
+        coef = (m * self._qd + self._qx) * (1.0 / bw)
+        out = self._q_col - np.multiply.outer(coef, P[1:] - P[:-1])
         if self.has_flare and flare_scale != 0:
             # only bins overlapping the flare run [t0 + tf[0], t0 + tf[-1]] get an excess (the running
             # integral is constant outside it, and np.interp holds the end values there)

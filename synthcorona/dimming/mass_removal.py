@@ -49,8 +49,17 @@ band), the fractional depth is
 independent of distance, linear in :math:`M` and :math:`\le 1` by construction. The same
 ratio with the band's energy-flux kernel gives the depth in energy flux.
 
-Not implemented: expansion dimming (adiabatic expansion of the CME-overlying plasma, e.g.
-Aschwanden 2009, Ann. Geophys. 27, 3275): only mass loss is modelled.
+Expansion dimming
+-----------------
+Optionally (:func:`expansion_emission_measure_change`), a fraction :math:`\phi` of the EM inside the
+source window expands adiabatically by a volume factor :math:`s \ge 1` without losing particles
+(the expansion dimming of Aschwanden 2009, Ann. Geophys. 27, 3275, from memory): with
+:math:`EM \propto N^2 / V` the expanded plasma keeps :math:`EM/s`, and with
+:math:`T V^{\gamma - 1}` = const (:math:`\gamma = 5/3`) it cools to :math:`T s^{-(\gamma - 1)}`,
+i.e. by :math:`(\gamma - 1)\log_{10} s` dex. The EM is moved onto the table grid with the same
+hat-function rule as :meth:`synthcorona.dem.DEM.em_weights` (first moment in log T preserved).
+The EM change can raise cooler bands (negative depth). The expansion is assumed to follow the same
+time profile as the mass loss.
 """
 from __future__ import annotations
 
@@ -62,11 +71,12 @@ import astropy.units as u
 import xarray as xr
 
 from ..abundances import mean_mass_per_hydrogen
-from ..validation import InputError, as_quantity, check_finite, check_range
+from ..validation import InputError, as_quantity, check_range
 
 __all__ = [
     "DENSITY_RANGE", "rtv_density", "mass_to_emission_measure", "removal_weights",
     "max_removable_emission_measure", "max_removable_mass", "removed_emission_measure", "band_depths",
+    "expansion_emission_measure_change",
 ]
 
 K_B = float(const.k_B.cgs.value)
@@ -254,3 +264,39 @@ def band_depths(removed, quiescent_weights, kernel, names=None) -> np.ndarray:
         raise InputError(f"band {bad} has no counts from the quiescent corona (sum EM K = 0): its dimming depth "
                          "is undefined; choose a band where the corona emits")
     return (np.asarray(removed, dtype=float) @ k.T) / base
+
+
+def expansion_emission_measure_change(logT, quiescent_weights, source_temperature, volume_factor, fraction=1.0,
+                                      window=0.15, gamma=5.0 / 3.0) -> np.ndarray:
+    r"""EM change per table node [cm-3] from adiabatic expansion of plasma near the source temperature.
+
+    A fraction ``fraction`` (in [0, 1]) of the quiescent EM within +-``window`` dex of
+    ``source_temperature`` expands by ``volume_factor`` s (in [1, 1e3]): it is removed from its nodes
+    and re-added as EM/s at log T - (gamma - 1) log10 s (see the module docstring). Returns an array
+    (n_T,) summing to -fraction EM_window (1 - 1/s); negative where EM is lost. Raises
+    :class:`InputError` if the cooled plasma would fall below the table's lowest temperature.
+    """
+    x = np.asarray(logT, dtype=float)
+    q = np.asarray(quiescent_weights, dtype=float)
+    check_range("volume_factor", volume_factor, lo=1.0, hi=1e3)
+    check_range("fraction", fraction, lo=0.0, hi=1.0)
+    check_range("gamma", gamma, lo=1.0, hi=5.0 / 3.0)
+    check_range("window", window, *WINDOW_RANGE, unit_label="dex")
+    t = as_quantity("source_temperature", source_temperature, u.K)
+    check_range("source_temperature", t.value, lo=10 ** x[0], hi=10 ** x[-1], unit_label="K")
+    lt = float(np.log10(t.value))
+    s = float(volume_factor)
+    em = np.where(np.abs(x - lt) <= float(window) + 1e-9, q * float(fraction), 0.0)
+    shift = (float(gamma) - 1.0) * math.log10(s)
+    xn = x - shift
+    moving = em > 0
+    if np.any(xn[moving] < x[0] - 1e-12):
+        raise InputError(f"volume_factor={s:g}: the expanded plasma would cool by {shift:.3g} dex, below the table's "
+                         f"lowest temperature 10^{x[0]:g} K")
+    xn = np.clip(xn, x[0], x[-1])
+    i = np.clip(np.searchsorted(x, xn) - 1, 0, x.size - 2)
+    f = np.clip((xn - x[i]) / (x[i + 1] - x[i]), 0.0, 1.0)
+    add = np.zeros_like(em)
+    np.add.at(add, i, em / s * (1.0 - f))
+    np.add.at(add, i + 1, em / s * f)
+    return add - em

@@ -34,8 +34,6 @@ Recovery time
 """
 from __future__ import annotations
 
-import math
-
 import numpy as np
 import astropy.constants as const
 import astropy.units as u

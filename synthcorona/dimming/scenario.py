@@ -28,6 +28,15 @@ zero, and the light curve's ``attrs["flare_termination"]`` says so.
 
 Times are on the light curve's clock: the first bin starts at 0, the CME onset is at
 ``Observation.pre_event``.
+
+Optional expansion dimming (``CME(expansion_factor=..., expanding_fraction=...)``, see
+:func:`synthcorona.dimming.mass_removal.expansion_emission_measure_change`) adds a mass-independent
+term to :math:`\delta_b` with the same time profile.
+
+Limitations: the source density and temperature are single values; the flare loop is treated as
+isothermal at its coronal-average temperature; the energy-flux depth of a band uses the band's
+energy limits (for a band "total" of an instrument, its whole response range), not its effective
+area.
 """
 from __future__ import annotations
 
@@ -120,7 +129,10 @@ class CME:
     (0 = confined), ``speed`` (default 500 km/s) and ``source_size`` (default 1e10 cm): the onset
     lasts source_size / speed unless ``onset`` (a time) is given. ``distribution``: "window"
     (default, quiescent DEM shape within +-``window`` dex), "gaussian" (sigma ``width`` dex) or
-    an array of weights on the table grid.
+    an array of weights on the table grid. ``expansion_factor`` s >= 1 (default 1: none) and
+    ``expanding_fraction``: expansion dimming of that fraction of the window's EM
+    (:func:`~synthcorona.dimming.mass_removal.expansion_emission_measure_change`); the mass is then
+    taken from the remaining (1 - fraction) of the EM at each node.
     """
 
     mass: u.Quantity
@@ -132,12 +144,16 @@ class CME:
     distribution: Any = "window"
     window: float = 0.15
     width: float | None = None
+    expansion_factor: float = 1.0
+    expanding_fraction: float = 1.0
 
     def __post_init__(self):
         m = mr.check_mass("mass", self.mass)
         if m.ndim != 0:
             raise InputError("mass must be a single value (pass arrays to DimmingScenario.depth(mass=...))")
         mr.check_escape_fraction(self.escape_fraction)
+        check_range("expansion_factor", self.expansion_factor, lo=1.0, hi=1e3)
+        check_range("expanding_fraction", self.expanding_fraction, lo=0.0, hi=1.0)
         _scalar("source_temperature", self.source_temperature, u.K, 1e5, 1e8, "K")
         if self.onset is None:
             prof.onset_time(self.source_size, self.speed)
@@ -288,8 +304,18 @@ class DimmingScenario:
         self.mu_h = mean_mass_per_hydrogen(cor.abundances)
         self.escape_fraction = mr.check_escape_fraction(cme.escape_fraction)
         self.em_per_gram = n_src * self.escape_fraction / (self.mu_h * mr.M_H)
-        self.max_mass = mr.max_removable_mass(self.quiescent_weights, self.removal_weights, n_src * u.cm ** -3,
+        xf = float(cme.expansion_factor)
+        if xf > 1.0 and cme.expanding_fraction > 0:
+            self.expansion_change = mr.expansion_emission_measure_change(
+                self.logT, self.quiescent_weights, t_src, xf, cme.expanding_fraction, cme.window)
+            in_win = np.abs(self.logT - np.log10(t_src.value)) <= cme.window + 1e-9
+            available = np.where(in_win, 1.0 - float(cme.expanding_fraction), 1.0) * self.quiescent_weights
+        else:
+            self.expansion_change = np.zeros_like(self.quiescent_weights)
+            available = self.quiescent_weights
+        self.max_mass = mr.max_removable_mass(available, self.removal_weights, n_src * u.cm ** -3,
                                               cor.abundances, self.escape_fraction)
+        self._check_mass_limit(cme.mass.to_value(u.g))
         # temperature responses, grouped per instrument
         nh = self.star.nh
         rows, eflux, bnds = [], [], []
@@ -318,10 +344,12 @@ class DimmingScenario:
                              f"{MIN_QUIESCENT_RATE:g} ct/s): its dimming depth is undefined; choose a band where the "
                              "corona emits")
         self.depth_per_gram = self.em_per_gram * (self.kernel @ self.removal_weights) / base
+        self.expansion_depth = -(self.kernel @ self.expansion_change) / base
         self.quiescent_flux = (self.flux_kernel @ self.quiescent_weights) / (4 * np.pi * d_cm ** 2)
         with np.errstate(invalid="ignore", divide="ignore"):
-            self.flux_depth_per_gram = self.em_per_gram * (self.flux_kernel @ self.removal_weights) / (
-                self.flux_kernel @ self.quiescent_weights)
+            fbase = self.flux_kernel @ self.quiescent_weights
+            self.flux_depth_per_gram = self.em_per_gram * (self.flux_kernel @ self.removal_weights) / fbase
+            self.flux_expansion_depth = -(self.flux_kernel @ self.expansion_change) / fbase
         # time profile
         self.onset = (float(cme.onset.to_value(u.s)) if cme.onset is not None
                       else float(prof.onset_time(cme.source_size, cme.speed).value))
@@ -411,7 +439,7 @@ class DimmingScenario:
         """Full fractional count-rate depths (..., n_bands) for masses in grams (plain floats)."""
         m = np.asarray(mass_g, dtype=float)
         self._check_mass_limit(m)
-        return m[..., None] * self.depth_per_gram
+        return m[..., None] * self.depth_per_gram + self.expansion_depth
 
     def flare_binned(self, edges, t0) -> np.ndarray:
         """Bin-averaged flare excess rates (n_bands, n_bins) [ct/s] for bin edges [s] and onset t0 [s]."""
@@ -460,6 +488,8 @@ class DimmingScenario:
             "emissivity_density_cm-3": self.emissivity_density,
             "source_temperature_K": float(self.cme.source_temperature.to_value(u.K)),
             "escape_fraction": self.escape_fraction,
+            "expansion_factor": float(self.cme.expansion_factor),
+            "expanding_fraction": float(self.cme.expanding_fraction) if self.cme.expansion_factor > 1 else 0.0,
             "max_removable_mass_g": float(self.max_mass.value),
             "onset_s": self.onset,
             "recovery_time_s": self.recovery_time,
@@ -481,7 +511,7 @@ class DimmingScenario:
         """
         m = np.atleast_1d(self._mass_g(mass))
         d = self.depths_for(m)                                              # (n_m, n_b)
-        df = m[:, None] * self.flux_depth_per_gram
+        df = m[:, None] * self.flux_depth_per_gram + self.flux_expansion_depth
         dims = ("mass", "band")
         ds = xr.Dataset(
             {
@@ -614,10 +644,11 @@ class DimmingScenario:
         base = self.quiescent_rate[b] + self.flare_binned(edges, self.t0)[b]
         p = prof.binned_profile(edges, self.t0, self.onset, self.recovery_time)
         q = self.quiescent_rate[b] * self.depth_per_gram[b]
+        qx = self.quiescent_rate[b] * self.expansion_depth[b]
 
         def fn(mass):
             m = float(mass.to_value(u.g))
-            return (base - q * m * p) * u.ct / u.s, base * u.ct / u.s
+            return (base - (q * m + qx) * p) * u.ct / u.s, base * u.ct / u.s
 
         res = _minimum_detectable(fn, self.bin_width * u.s, bracket=(lo_g * u.g, hi_g * u.g),
                                   target_probability=target_probability, false_alarm=self.observation.false_alarm,
