@@ -51,9 +51,11 @@ def continuum_interp_error(chianti, ions=("o_7", "o_8", "fe_17", "fe_24", "fe_25
         interp = at_nodes[:, :-1] + (at_nodes[:, 1:] - at_nodes[:, :-1]) * (mid - e[:-1]) / (e[1:] - e[:-1])
         sig = at_mid > 1e-3 * at_mid.max(axis=1, keepdims=True)
         rel = np.abs(interp - at_mid) / np.where(at_mid > 0, at_mid, 1)
-        # a cell holds an edge if the node values jump by > 20 % against the smooth trend
-        jump = np.abs(np.diff(np.log(np.maximum(at_nodes, 1e-300)), axis=1))
-        edge = jump > 5 * np.median(jump, axis=1, keepdims=True) + 0.05
+        # a cell holds a recombination edge if its log step departs by > 1 % from the mean of its neighbours'
+        # (a smooth continuum changes its log slope slowly from cell to cell)
+        step = np.diff(np.log(np.maximum(at_nodes, 1e-300)), axis=1)
+        trend = 0.5 * (np.roll(step, 1, axis=1) + np.roll(step, -1, axis=1))
+        edge = np.abs(step - trend) > 0.01
         edge_near = edge | np.roll(edge, 1, axis=1) | np.roll(edge, -1, axis=1)
         smooth = sig & ~edge_near
         w = float(np.max(np.where(smooth, rel, 0)))
