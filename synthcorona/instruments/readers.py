@@ -752,7 +752,8 @@ def _samples_to_instrument(p, what, xq, area, negative_area, name, bands, descri
 
 # ----------------------------------------------------------------------------- CHIANTI
 def _chianti_dir(chianti_root) -> Path:
-    """Locate <root>/ancillary_data/instrument_responses from the argument or $SYNTHCORONA_CHIANTI."""
+    """Locate <root>/ancillary_data/instrument_responses from the argument or $SYNTHCORONA_CHIANTI
+    (an ASCII CHIANTI tree, or a .tar.xz of one)."""
     if chianti_root is not None:
         root, source = Path(os.fspath(chianti_root)).expanduser(), "the chianti_root argument"
     elif os.environ.get(CHIANTI_ENV):
@@ -761,6 +762,11 @@ def _chianti_dir(chianti_root) -> Path:
         raise InstrumentFileError(
             f"no CHIANTI installation given: pass chianti_root= or set the environment variable {CHIANTI_ENV} to "
             f"the CHIANTI root directory (the one containing '{_CHIANTI_AREA_DIR}')")
+    if root.is_file() and root.name.endswith((".tar.xz", ".txz")):
+        # a packed CHIANTI copy: extracted once into the user cache by the locator (no fiasco import on this path)
+        from ..atomic.locate import find_chianti
+
+        root = find_chianti(root).root
     d = root / _CHIANTI_AREA_DIR
     if not d.is_dir():
         raise InstrumentFileError(f"CHIANTI root '{root}' (from {source}) has no directory '{_CHIANTI_AREA_DIR}'; "
