@@ -14,7 +14,10 @@ Biometrika 31, 313). The one-sided p-value of a *lower* post-event rate is
 :math:`P(X \le N_2)` (``scipy.special.bdtr``), and its Gaussian-equivalent significance
 is :math:`\sigma = \Phi^{-1}(1 - p)` (computed from :math:`\ln p` with
 ``scipy.special.ndtri_exp``, so it stays finite down to p ~ 1e-308; below that it is
-``inf``). In the Gaussian limit the expected significance of a step is :func:`step_snr`,
+``inf``). For :math:`N > 10^7` (e.g. the Sun at 1 AU, ~1e10 counts per window, where
+``bdtr`` overflows its integer arguments and returns NaN) the binomial CDF is replaced by the
+normal approximation with continuity correction, evaluated in log space
+(:data:`WINDOW_NORMAL_LIMIT`, :func:`_window_sigma`). In the Gaussian limit the expected significance of a step is :func:`step_snr`,
 :math:`(r_1 - r_2)/\sqrt{r_1/t_1 + r_2/t_2}` -- the "simple" on/off significance of
 Li & Ma (1983, ApJ 272, 317, their eq. 5) with expected instead of observed counts.
 
@@ -167,12 +170,36 @@ def _check_false_alarm(false_alarm, n: int) -> float:
 
 
 # ----------------------------------------------------------------------------- window test
+#: Above this total count N1 + N2 the window test uses the normal approximation to the binomial
+#: (``special.bdtr`` returns NaN once N exceeds the C int range, ~2.1e9).
+WINDOW_NORMAL_LIMIT = 1e7
+
+
 def _window_sigma(n_pre, n_post, q):
-    """Significance (sigma) of the exact conditional test, no checks. ``q = t_post/(t_pre+t_post)``."""
+    """Significance (sigma) of the exact conditional test, no checks. ``q = t_post/(t_pre+t_post)``.
+
+    For N = N1 + N2 > :data:`WINDOW_NORMAL_LIMIT` the binomial CDF is replaced by the normal
+    approximation with continuity correction, P(X <= k) ~ Phi((k + 1/2 - N q) / sqrt(N q (1 - q)))
+    (de Moivre-Laplace; e.g. Feller 1968, An Introduction to Probability Theory and Its
+    Applications, vol. 1, 3rd ed., Wiley, ch. VII), evaluated in log space (``log_ndtr``) so that
+    it neither overflows nor underflows. Its error in sigma is of order the skewness term
+    |1 - 2q| z^2 / (6 sqrt(N q (1 - q))), < 1e-3 sigma for z < 10 and 0.01 <= q <= 0.99 at N > 1e7.
+    """
     n_pre = np.asarray(n_pre).astype(np.int64, copy=False)
     n_post = np.asarray(n_post).astype(np.int64, copy=False)
-    with np.errstate(divide="ignore"):
-        logp = np.log(special.bdtr(n_post, n_pre + n_post, q))
+    q = np.asarray(q, dtype=float)
+    n_pre, n_post, q = np.broadcast_arrays(n_pre, n_post, q)
+    n_tot = n_pre + n_post
+    big = n_tot > WINDOW_NORMAL_LIMIT
+    with np.errstate(divide="ignore", invalid="ignore"):
+        small_n = np.where(big, 0, n_tot)
+        small_k = np.where(big, 0, n_post)
+        logp = np.log(special.bdtr(small_k, small_n, q))
+        if np.any(big):
+            nb = n_tot.astype(float)
+            z = (n_post + 0.5 - nb * q) / np.sqrt(nb * q * (1.0 - q))
+            logp = np.where(big, special.log_ndtr(z), logp)
+        logp = np.minimum(logp, 0.0)
     return -special.ndtri_exp(logp), logp
 
 

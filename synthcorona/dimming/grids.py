@@ -1,0 +1,215 @@
+"""Detection probability (and minimum detectable CME mass) over a grid of scenario parameters.
+
+:func:`detection_grid` varies a base :class:`~synthcorona.dimming.scenario.DimmingScenario` over
+the outer product of the given axes -- distance and interstellar column (the :class:`Star`),
+exposure and bin width (the :class:`Observation`), instrument, and CME mass -- and evaluates
+:meth:`DimmingScenario.detection_probability` at every grid point (a plain loop over grid points;
+the Monte Carlo inside is vectorised over realisations). Every grid point uses the same ``seed``
+(common random numbers), so P(detect) is reproducible and, with the inversion sampler of
+:mod:`synthcorona.dimming.noise`, monotone along the mass axis.
+"""
+from __future__ import annotations
+
+import dataclasses
+import itertools
+import warnings
+
+import numpy as np
+import astropy.units as u
+import xarray as xr
+
+from ..validation import InputError, as_quantity
+
+__all__ = ["detection_grid"]
+
+_AXES = (("distance", u.pc, "pc"), ("nh", u.cm ** -2, "cm-2"), ("exposure", u.s, "s"), ("bin_width", u.s, "s"),
+         ("mass", u.g, "g"))
+
+
+def _axis(name, value, unit):
+    q = as_quantity(name, value, unit)
+    v = np.atleast_1d(np.asarray(q.value, dtype=float))
+    if v.ndim != 1 or v.size < 1:
+        raise InputError(f"{name} must be a 1-D list of values; got shape {v.shape}")
+    if not np.all(np.isfinite(v)):
+        raise InputError(f"{name}={v} contains NaN or infinite values")
+    return v
+
+
+def _instrument_label(x):
+    from ..instruments.response import Instrument
+
+    if isinstance(x, str):
+        return x
+    if isinstance(x, Instrument):
+        return x.name
+    if isinstance(x, tuple) and len(x) == 2:
+        return f"{_instrument_label(x[0])}:{x[1]}"
+    raise InputError(f"instrument entry {x!r} must be an Instrument, a generic name or (instrument, band)")
+
+
+def detection_grid(base_scenario, distance=None, nh=None, exposure=None, bin_width=None, mass=None, instrument=None,
+                   n_realisations: int = 2000, seed=0, statistic: str = "window", band=None, min_mass: bool = False,
+                   target_probability: float = 0.5, bracket=(1e13 * u.g, 1e18 * u.g), progress: bool = False
+                   ) -> xr.Dataset:
+    """P(detect) over the outer product of the given parameter axes.
+
+    Parameters
+    ----------
+    base_scenario : DimmingScenario
+        Everything not on an axis is taken from it (its star, corona, CME, flare, instruments,
+        observation, recovery model).
+    distance, nh, exposure, bin_width, mass : Quantity (1-D or scalar), optional
+        Axes; each given one becomes a dimension of the result (in that order). ``exposure``
+        and ``bin_width`` keep the base observation's ``pre_event``.
+    instrument : list of Instrument / generic name / (instrument, band), optional
+        Instrument axis (coordinate: names). Each entry must give a single band.
+    n_realisations, seed, statistic
+        As for :meth:`DimmingScenario.detection_probability`; the same seed at every grid point.
+    band : str, optional
+        Evaluate only this band label of the base scenario (default: all its bands, a ``band``
+        dimension). With an instrument axis each entry has one band and there is no band dimension.
+    min_mass : bool
+        Also compute the minimum detectable mass (:meth:`DimmingScenario.minimum_detectable_mass`)
+        at ``target_probability`` within ``bracket`` for every non-mass grid point, in the
+        scenario's best band (or ``band``); NaN where the bracket does not straddle the target
+        (``attrs["min_mass_notes"]`` says where).
+    progress : bool
+        Show a tqdm progress bar.
+
+    Returns
+    -------
+    xarray.Dataset with ``probability`` and ``probability_error`` over the axis dims (+ ``band``
+    without an instrument axis), ``depth`` (fractional count-rate depth at each point), and with
+    ``min_mass=True`` ``minimum_detectable_mass`` and ``minimum_detectable_mass_error`` [g] over
+    the non-mass dims. Coordinates carry units attrs.
+    """
+    from tqdm.auto import tqdm
+
+    from .scenario import DimmingScenario
+
+    if not isinstance(base_scenario, DimmingScenario):
+        raise InputError(f"base_scenario={base_scenario!r} must be a DimmingScenario")
+    n_realisations = int(n_realisations)
+    given = {"distance": distance, "nh": nh, "exposure": exposure, "bin_width": bin_width, "mass": mass}
+    axes = {}
+    for name, unit, label in _AXES:
+        if given[name] is not None:
+            axes[name] = (_axis(name, given[name], unit), label)
+    inst_list = None
+    if instrument is not None:
+        inst_list = list(instrument) if isinstance(instrument, (list, tuple)) and not (
+            isinstance(instrument, tuple) and len(instrument) == 2 and isinstance(instrument[1], str)) else [instrument]
+        inst_labels = [_instrument_label(x) for x in inst_list]
+    base = base_scenario
+    outer = [n for n in ("distance", "nh", "exposure", "bin_width") if n in axes]
+    if inst_list is not None:
+        outer.append("instrument")
+    mass_vals = axes["mass"][0] if "mass" in axes else np.array([float(base.cme.mass.to_value(u.g))])
+
+    def outer_values(name):
+        return inst_list if name == "instrument" else axes[name][0]
+
+    shape_outer = [len(outer_values(n)) for n in outer]
+    if inst_list is None:
+        bands = [band] if band is not None else list(base.labels)
+        if band is not None:
+            base._band_index(band)
+    else:
+        bands = None
+    nb = 1 if bands is None else len(bands)
+    prob = np.full(shape_outer + [mass_vals.size, nb], np.nan)
+    perr = np.full_like(prob, np.nan)
+    depth = np.full_like(prob, np.nan)
+    mmin = np.full(shape_outer, np.nan)
+    mmin_err = np.full(shape_outer, np.nan)
+    mmin_band = np.empty(shape_outer, dtype=object)
+    notes = []
+
+    points = list(itertools.product(*[range(s) for s in shape_outer]))
+    for idx in tqdm(points, disable=not progress, desc="detection grid"):
+        vals = {n: outer_values(n)[i] for n, i in zip(outer, idx)}
+        star_kw, obs_kw = {}, {}
+        if "distance" in vals:
+            star_kw["distance"] = vals["distance"] * u.pc
+        if "nh" in vals:
+            star_kw["nh"] = vals["nh"] * u.cm ** -2
+        if "exposure" in vals:
+            obs_kw["exposure"] = vals["exposure"] * u.s
+        if "bin_width" in vals:
+            obs_kw["bin_width"] = vals["bin_width"] * u.s
+        star = dataclasses.replace(base.star, **star_kw) if star_kw else base.star
+        obs = dataclasses.replace(base.observation, **obs_kw) if obs_kw else base.observation
+        if "instrument" in vals:
+            inst = vals["instrument"]
+        else:
+            inst = {lab: (ins, b) for lab, ins, b in base.bands}
+        # the scenario's own mass must be removable at every point: build it with the smallest mass
+        cme = dataclasses.replace(base.cme, mass=float(mass_vals.min()) * u.g)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            sc = DimmingScenario(star, base.corona, cme, base.flare, inst, obs, recovery=base.recovery,
+                                 upflow_fraction=base.upflow_fraction)
+        if bands is None and len(sc.labels) != 1:
+            raise InputError(f"instrument entry {inst!r} gives bands {sc.labels}; on the instrument axis give "
+                             "(instrument, band) so that each entry has one band")
+        for k, m in enumerate(mass_vals):
+            blist = [None] if bands is None else bands
+            for j, b in enumerate(blist):
+                ds = sc.detection_probability(n_realisations, statistic=statistic, seed=seed,
+                                              band=b if b is not None else sc.labels[0], mass=m * u.g)
+                prob[idx + (k, j)] = float(ds["probability"].values[0])
+                perr[idx + (k, j)] = float(ds["probability_error"].values[0])
+                bi = sc.labels.index(b if b is not None else sc.labels[0])
+                depth[idx + (k, j)] = float(sc.depths_for(m)[bi])
+        if min_mass:
+            try:
+                res = sc.minimum_detectable_mass(target_probability, bracket=bracket, band=band, statistic=statistic,
+                                                 n_realisations=n_realisations, seed=seed)
+                mmin[idx] = float(res["mass"])
+                mmin_err[idx] = float(res["mass_error"])
+                mmin_band[idx] = res.attrs["band"]
+            except InputError as exc:
+                notes.append(f"{dict(zip(outer, [str(v) for v in vals.values()]))}: {exc}")
+                mmin_band[idx] = ""
+
+    dims = list(outer) + ["mass"] + ([] if bands is None else ["band"])
+    if bands is None:
+        prob, perr, depth = prob[..., 0], perr[..., 0], depth[..., 0]
+    coords = {}
+    for n in outer:
+        if n == "instrument":
+            coords["instrument"] = inst_labels
+        else:
+            coords[n] = (n, axes[n][0], {"units": axes[n][1]})
+    coords["mass"] = ("mass", mass_vals, {"units": "g"})
+    if bands is not None:
+        coords["band"] = bands
+    data = {
+        "probability": (dims, prob, {"units": "1", "long_name": "P(detect) at the false-alarm probability"}),
+        "probability_error": (dims, perr, {"units": "1", "long_name": "binomial Monte Carlo error"}),
+        "depth": (dims, depth, {"units": "1", "long_name": "full fractional count-rate depth"}),
+    }
+    if min_mass:
+        data["minimum_detectable_mass"] = (outer, mmin, {"units": "g",
+                                                         "long_name": f"mass where P(detect) = {target_probability:g}"})
+        data["minimum_detectable_mass_error"] = (outer, mmin_err, {"units": "g"})
+        data["minimum_detectable_mass_band"] = (outer, mmin_band.astype(str))
+    attrs = {
+        "statistic": statistic, "n_realisations": n_realisations, "seed": str(seed),
+        "false_alarm": float(base.observation.false_alarm),
+        "base_instruments": str(base._attrs()["instruments"]),
+        "abundances": str(base.corona.abundances),
+        "source_density_cm-3": float(base.density),
+        "source_temperature_K": float(base.cme.source_temperature.to_value(u.K)),
+        "method": ("P(detect) by injection/recovery at every grid point "
+                   "(DimmingScenario.detection_probability), same seed everywhere (synthcorona.dimming.grids)"),
+    }
+    if min_mass:
+        attrs["target_probability"] = float(target_probability)
+        attrs["min_mass_bracket_g"] = [float(as_quantity("bracket", b, u.g).value) for b in bracket]
+        attrs["min_mass_notes"] = "; ".join(notes) if notes else "all grid points bracketed"
+    ds = xr.Dataset(data, coords=coords, attrs=attrs)
+    if "mass" not in axes:
+        ds = ds.isel(mass=0)
+    return ds
