@@ -68,9 +68,9 @@ class EmissivityTable:
             self._line_q = None
             self._line_eps_full = np.asarray(le.values)  # (line, n, T)
         self._line_planes: dict = {}
-        self._ff = np.asarray(ds["cont_ff"].values)  # (el, T, E)
-        self._fb = np.asarray(ds["cont_fb"].values)
-        self._tp = np.asarray(ds["cont_2p"].values)  # (el, n, T, E)
+        # continua (el, T, E) and two-photon (el, n, T, E): decoded on first use when read lazily
+        self._cont_raw = {k: (np.asarray(ds[v].values), dict(ds[v].attrs))
+                          for k, v in (("ff", "cont_ff"), ("fb", "cont_fb"), ("2p", "cont_2p"))}
         self.mass_amu = np.asarray(ds["mass_amu"].values, dtype=float)
         self.fip_ev = np.asarray(ds["fip_ev"].values, dtype=float)
         self.provenance = dict(ds.attrs)
@@ -84,6 +84,27 @@ class EmissivityTable:
         except KeyError as exc:
             raise TableFileError(f"table {path}: line of element Z={exc.args[0]} has no continuum entry") from None
         self._cache: dict = {}
+
+    def _cont(self, key: str) -> np.ndarray:
+        arr, attrs = self._cont_raw[key]
+        if np.issubdtype(arr.dtype, np.integer):
+            from .tablefile import decode_full
+
+            arr = decode_full(arr, attrs)
+            self._cont_raw[key] = (arr, attrs)
+        return arr
+
+    @property
+    def _ff(self) -> np.ndarray:
+        return self._cont("ff")
+
+    @property
+    def _fb(self) -> np.ndarray:
+        return self._cont("fb")
+
+    @property
+    def _tp(self) -> np.ndarray:
+        return self._cont("2p")
 
     # ------------------------------------------------------------------ description
     def __repr__(self) -> str:
@@ -246,7 +267,8 @@ def _default_path() -> pathlib.Path:
 
 @functools.lru_cache(maxsize=4)
 def _load_cached(path: str, mtime_ns: int, size: int) -> EmissivityTable:
-    return EmissivityTable(read_table(path, verify=True, lazy=("line_emissivity",)), path)
+    return EmissivityTable(read_table(path, verify=True, lazy=("line_emissivity", "cont_ff", "cont_fb", "cont_2p")),
+                           path)
 
 
 def load_emissivity(path=None) -> EmissivityTable:

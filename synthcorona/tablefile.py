@@ -88,6 +88,13 @@ def _unpack(ints: np.ndarray, scale: float, offset: float, dtype=np.float64) -> 
     return np.take(lut, idx)
 
 
+def decode_full(stored: np.ndarray, attrs: dict, dtype=np.float64) -> np.ndarray:
+    """Values of a lazily read packed array (``read_table(..., lazy=...)``), all at once."""
+    axes = tuple(int(x) for x in str(attrs.get("delta_axes", "")).split())
+    codes = _delta_decode(stored, axes) if axes else stored
+    return _unpack(codes, float(attrs["pack_scale"]), float(attrs["pack_offset"]), dtype=dtype)
+
+
 def decode_plane(stored: np.ndarray, attrs: dict, k: int, dtype=np.float32) -> np.ndarray:
     """Values of plane ``k`` along axis 1 of a lazily read 3-D packed array (``read_table(..., lazy=...)``).
 
