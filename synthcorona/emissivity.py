@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import functools
 import importlib.resources
-import json
 import pathlib
 
 import numpy as np

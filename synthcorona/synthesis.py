@@ -62,7 +62,7 @@ class _Prepared:
         de = np.diff(e)
         # cumulative integral of the piecewise-linear continuum at the nodes (T, E)
         seg = 0.5 * (self.cont[:, 1:] + self.cont[:, :-1]) * de
-        self.cont_cum = np.concatenate([np.zeros((e.size and self.cont.shape[0], 1)), np.cumsum(seg, axis=1)], axis=1)
+        self.cont_cum = np.concatenate([np.zeros((self.cont.shape[0], 1)), np.cumsum(seg, axis=1)], axis=1)
         # same for photons: cont / E (photons cm3 s-1 keV-1 per erg→ photon: divide by E in erg)
         cph = self.cont / (e * KEV_TO_ERG)
         self.cont_ph = cph
@@ -377,7 +377,6 @@ def synthesize(dem, wavelength=None, energy=None, table=None, abundances="corona
         centres = (e_line[sel] * u.keV).to_value(grid.unit)
     if not broaden:
         en = e_line[sel]
-        asc_e = np.sort(np.concatenate([e_lo, e_hi[-1:] if e_hi[-1] >= e_lo[-1] else e_hi[:1]]))
         # bin index by energy, robust to user bin order
         edges_e = grid.energy_edges
         asc = edges_e[-1] > edges_e[0]
@@ -387,7 +386,6 @@ def synthesize(dem, wavelength=None, energy=None, table=None, abundances="corona
         line_bins = np.bincount(idx[ok], weights=amp[ok], minlength=grid.n)
         if not asc:
             line_bins = line_bins[::-1]
-        del asc_e
     else:
         sigma = np.zeros(centres.size)
         if thermal_broadening:

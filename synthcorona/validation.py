@@ -10,7 +10,7 @@ from __future__ import annotations
 import numpy as np
 import astropy.units as u
 
-__all__ = ["InputError", "as_quantity", "check_finite", "check_range", "check_positive"]
+__all__ = ["InputError", "as_quantity", "as_scalar", "check_finite", "check_range", "check_positive"]
 
 
 class InputError(ValueError):
@@ -88,3 +88,13 @@ def check_range(name: str, value, lo=None, hi=None, unit_label: str = "", inclus
 def check_positive(name: str, value, unit_label: str = "", allow_zero=False) -> None:
     """Raise :class:`InputError` unless every element is > 0 (or >= 0 with ``allow_zero``)."""
     check_range(name, value, lo=0.0, hi=None, unit_label=unit_label, inclusive=allow_zero)
+
+
+def as_scalar(name: str, value, unit, lo=None, hi=None, unit_label: str = "", inclusive: bool = True) -> float:
+    """One value of ``value`` in ``unit`` as a float; raise a named error if it is an array or out of range."""
+    q = as_quantity(name, value, unit)
+    v = np.asarray(q.value, dtype=float)
+    if v.ndim != 0:
+        raise InputError(f"{name} must be a single value, got shape {v.shape}")
+    check_range(name, v, lo=lo, hi=hi, unit_label=unit_label, inclusive=inclusive)
+    return float(v)

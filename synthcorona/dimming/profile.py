@@ -38,7 +38,7 @@ import numpy as np
 import astropy.constants as const
 import astropy.units as u
 
-from ..validation import InputError, as_quantity, check_range
+from ..validation import InputError, as_quantity, as_scalar, check_range
 from .flare import conductive_cooling_time, radiative_cooling_time
 
 __all__ = ["sound_speed", "refill_time", "cooling_time", "recovery_time", "onset_time",
@@ -52,12 +52,8 @@ DEFAULT_UPFLOW_FRACTION = 0.05
 
 
 def _pos_scalar(name, value, unit, lo=0.0, hi=None, unit_label=""):
-    q = as_quantity(name, value, unit)
-    v = np.asarray(q.value, dtype=float)
-    if v.ndim != 0:
-        raise InputError(f"{name} must be a single value, got shape {v.shape}")
-    check_range(name, v, lo=lo, hi=hi, unit_label=unit_label, inclusive=False)
-    return float(v)
+    """A single value strictly inside (lo, hi)."""
+    return as_scalar(name, value, unit, lo=lo, hi=hi, unit_label=unit_label, inclusive=False)
 
 
 def sound_speed(temperature, gamma: float = GAMMA) -> u.Quantity:

@@ -52,7 +52,7 @@ from scipy.integrate import cumulative_trapezoid
 
 from ..abundances import mean_mass_per_hydrogen
 from ..dem import DEM
-from ..validation import InputError, as_quantity, check_range
+from ..validation import InputError, as_quantity, as_scalar, check_range
 from . import mass_removal as mr
 from . import profile as prof
 from .flare import LoopFlareModel
@@ -67,13 +67,7 @@ _PC_CM = float((1.0 * u.pc).to_value(u.cm))
 MIN_QUIESCENT_RATE = 1e-12
 
 
-def _scalar(name, value, unit, lo=None, hi=None, unit_label="", inclusive=True):
-    q = as_quantity(name, value, unit)
-    v = np.asarray(q.value, dtype=float)
-    if v.ndim != 0:
-        raise InputError(f"{name} must be a single value, got shape {v.shape}")
-    check_range(name, v, lo=lo, hi=hi, unit_label=unit_label, inclusive=inclusive)
-    return float(v)
+_scalar = as_scalar
 
 
 @dataclass(frozen=True)
