@@ -1,0 +1,43 @@
+"""``synthcorona build-table``: build an emissivity table from a CHIANTI copy."""
+from __future__ import annotations
+
+
+import numpy as np
+
+
+NAME = "build-table"
+HELP = "build an emissivity table from a CHIANTI copy"
+
+
+def add_arguments(p) -> None:
+    """Options of ``synthcorona build-table``."""
+    p.add_argument("--chianti", help="ASCII CHIANTI tree or .tar.xz (default: $SYNTHCORONA_CHIANTI, then fiasco's)")
+    p.add_argument("--output", "-o", required=True, help="netCDF file to write")
+    p.add_argument("--jobs", "-j", type=int, default=1, help="parallel worker processes (default 1)")
+    p.add_argument("--work-dir", help="directory for per-ion results (resumable; default: user cache)")
+    p.add_argument("--elements", nargs="+", help="element symbols (default: photospheric abundance >= 1e-7 of H)")
+    p.add_argument("--logT-min", type=float, default=4.5, help="lowest log10 T [K] (default 4.5)")
+    p.add_argument("--logT-max", type=float, default=8.5, help="highest log10 T [K] (default 8.5)")
+    p.add_argument("--logT-step", type=float, default=0.05, help="log10 T step [dex] (default 0.05)")
+    p.add_argument("--log-densities", type=float, nargs="+", default=[8, 9, 10, 11, 12],
+                   help="log10 electron densities [cm-3] (default 8 9 10 11 12)")
+    p.add_argument("--energy-points", type=int, default=1000, help="continuum grid points, 1 eV-50 keV (default 1000)")
+    p.add_argument("--line-threshold", type=float, default=1e-3,
+                   help="largest share of an ion's line emission the dropped weak lines may carry (default 1e-3)")
+    p.add_argument("--two-ion-max-levels", type=int, default=None,
+                   help="use the two-ion level model only up to this many levels (default: always)")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+
+
+def run(args) -> int:
+    from ..atomic.builder import BuildSettings, build_table, default_energy_grid
+
+    logT = np.round(np.arange(args.logT_min, args.logT_max + 1e-9, args.logT_step), 6)
+    settings = BuildSettings(logT=logT, log_density=np.array(args.log_densities, dtype=float),
+                             energy=default_energy_grid(args.energy_points), elements=args.elements,
+                             line_threshold=args.line_threshold, two_ion_max_levels=args.two_ion_max_levels)
+    out = build_table(args.output, chianti=args.chianti, settings=settings, jobs=args.jobs,
+                      work_dir=args.work_dir, progress=not args.quiet)
+    print(f"wrote {out}")
+    return 0
+

@@ -1,0 +1,25 @@
+"""``synthcorona table-info``: print the provenance of an emissivity table."""
+from __future__ import annotations
+
+
+NAME = "table-info"
+HELP = "print the provenance of an emissivity table"
+
+
+def add_arguments(p) -> None:
+    """Options of ``synthcorona table-info``."""
+    p.add_argument("table", nargs="?", help="table file (default: the embedded table)")
+
+
+def run(args) -> int:
+    from ..emissivity import load_emissivity
+
+    t = load_emissivity(args.table)
+    print(repr(t))
+    for k in ("chianti_version", "chianti_provenance", "chianti_substituted_ions", "fiasco_version", "ioneq",
+              "elements", "line_threshold",
+              "lines_kept", "two_ion_model", "build_date", "content_hash", "storage_error"):
+        if k in t.provenance:
+            print(f"{k}: {t.provenance[k]}")
+    return 0
+
