@@ -1,0 +1,86 @@
+"""TOML input reading (synthcorona.config): typed keys, units, ranges, and errors naming file and key."""
+import numpy as np
+import astropy.units as u
+import pytest
+
+import synthcorona as sc
+from synthcorona.config import ScenarioError, abundances_from_key, dem_from_section, load_toml
+
+
+def _dem(text):
+    return dem_from_section(load_toml("[corona.dem]\n" + text, name="t.toml").section("corona").section("dem"))
+
+
+def test_units_are_converted_by_astropy():
+    s = load_toml('d = "3.26156 lyr"\nt = "1 keV"\n', name="t.toml")
+    # 1 pc = 3.26156 light years (IAU 2015 Resolution B2, pc and lyr definitions)
+    assert s.quantity("d", u.pc).value == pytest.approx(1.0, rel=1e-5)
+    # k_B = 8.617333e-5 eV/K (CODATA 2018): 1 keV = 1.16045e7 K
+    assert s.quantity("t", u.K).value == pytest.approx(1.16045e7, rel=1e-5)
+    s.finish()
+
+
+@pytest.mark.parametrize("text, key, phrase", [
+    ('model = "gaussian"\npeak_temperature = "3 MK"\nwidth_dex = 0.2\nemission_measure = "1e51"\n',
+     "emission_measure", "needs a unit"),
+    ('model = "gaussian"\npeak_temperature = "3 pc"\nwidth_dex = 0.2\nemission_measure = "1e51 cm-3"\n',
+     "peak_temperature", "not convertible"),
+    ('model = "gaussian"\npeak_temperature = 3e6\nwidth_dex = 0.2\nemission_measure = "1e51 cm-3"\n',
+     "peak_temperature", "needs a unit"),
+    ('model = "gaussian"\npeak_temperature = "3 MK"\nwidth_dex = "wide"\nemission_measure = "1e51 cm-3"\n',
+     "width_dex", "must be a number"),
+    ('model = "gaussian"\npeak_temperature = "3 MK"\nwidth_dex = -0.1\nemission_measure = "1e51 cm-3"\n',
+     "width_dex", "valid range"),
+    ('model = "gaussian"\nwidth_dex = 0.2\nemission_measure = "1e51 cm-3"\n', "peak_temperature", "missing"),
+    ('model = "gaussian"\npeak_temperature = "3 MK"\nwidth_dex = 0.2\nemission_measure = "1e51 cm-3"\nwidht = 1\n',
+     "widht", "unknown key"),
+    ('model = "lorentzian"\n', "model", "must be one of"),
+    ('model = "isothermal"\ntemperature = "2 MK"\nemission_measure = "-1e50 cm-3"\n', "emission_measure",
+     "valid range"),
+])
+def test_bad_dem_keys_are_named(text, key, phrase):
+    with pytest.raises(ScenarioError) as exc:
+        _dem(text)
+    msg = str(exc.value)
+    assert msg.startswith("t.toml: [corona.dem]")
+    assert key in msg and phrase in msg
+
+
+def test_gaussian_and_component_dems_match_the_api():
+    d = _dem('model = "gaussian"\npeak_temperature = "3 MK"\nwidth_dex = 0.2\nemission_measure = "1e51 cm-3"\n')
+    ref = sc.GaussianDEM(peak_logT=np.log10(3e6), width_logT=0.2, total_em=1e51 * u.cm ** -3)
+    logT = np.arange(5.0, 8.0, 0.05)
+    np.testing.assert_allclose(d.em_weights(logT).value, ref.em_weights(logT).value, rtol=1e-12)
+    m = _dem('model = "components"\n[[corona.dem.component]]\nmodel = "isothermal"\ntemperature = "2 MK"\n'
+             'emission_measure = "1e50 cm-3"\n[[corona.dem.component]]\nmodel = "gaussian"\n'
+             'peak_temperature = "8 MK"\nwidth_dex = 0.1\nemission_measure = "3e50 cm-3"\n')
+    # total EM of a sum of components is the sum of their EMs
+    assert m.em_weights(logT).sum().to_value(u.cm ** -3) == pytest.approx(4e50, rel=1e-3)
+
+
+def test_tabulated_dem_inline():
+    d = _dem('model = "tabulated"\ntemperature = ["1 MK", "2 MK", "4 MK"]\n'
+             'dem = ["1e44 cm-3 K-1", "1e44 cm-3 K-1", "1e44 cm-3 K-1"]\n')
+    # a flat DEM of 1e44 per K from 1 to 4 MK holds 3e6 K x 1e44 = 3e50 cm-3 (trapezoid of a constant is exact)
+    assert d.total_em.to_value(u.cm ** -3) == pytest.approx(3e50, rel=1e-9)
+
+
+def test_abundances_by_name_or_table():
+    s = load_toml('a = "photospheric"\n[b]\nset = "photospheric"\nfip_bias = 4.0\n[c]\nset = "nonsense"\n',
+                  name="t.toml")
+    a = abundances_from_key(s, "a")
+    b = abundances_from_key(s, "b")
+    # Fe is a low-FIP element (FIP 7.90 eV, CRC Handbook) and O is high-FIP (13.62 eV)
+    assert b.values["Fe"] / a.values["Fe"] == pytest.approx(4.0)
+    assert b.values["O"] == pytest.approx(a.values["O"])
+    with pytest.raises(ScenarioError, match=r"\[c\] set = \"nonsense\": unknown abundance set"):
+        abundances_from_key(s, "c")
+
+
+def test_toml_syntax_error_names_file(tmp_path):
+    p = tmp_path / "broken.toml"
+    p.write_text("[star\ndistance = 1\n")
+    with pytest.raises(ScenarioError, match="broken.toml: not valid TOML"):
+        load_toml(p)
+    with pytest.raises(ScenarioError, match="missing.toml: file not found"):
+        load_toml(tmp_path / "missing.toml")
