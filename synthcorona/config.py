@@ -192,6 +192,33 @@ class Section:
             raise self.error(key, "must be a string or a non-empty list of strings")
         return list(val)
 
+    def band(self, key: str, *, required: bool = False, default: Any = None) -> u.Quantity | None:
+        """A spectral band: ``"0.1-2.4 keV"``, ``"165-180 Angstrom"`` or ``["0.1 keV", "2.4 keV"]`` -> Quantity pair.
+
+        Energies or wavelengths (any astropy unit of either); both ends positive and different.
+        """
+        val = self._get(key, required, _MISSING)
+        if val is _MISSING:
+            return default
+        example = 'e.g. "0.1-2.4 keV", "165-180 Angstrom" or ["0.1 keV", "2.4 keV"]'
+        try:
+            if isinstance(val, str):
+                rng, unit = val.strip().split(None, 1)
+                lo, hi = rng.split("-")
+                q = u.Quantity([float(lo), float(hi)], u.Unit(unit))
+            elif isinstance(val, list) and len(val) == 2 and all(isinstance(v, str) for v in val):
+                a, b = u.Quantity(val[0]), u.Quantity(val[1])
+                q = u.Quantity([a.value, b.to_value(a.unit, equivalencies=u.spectral())], a.unit)
+            else:
+                raise ValueError
+        except (ValueError, TypeError, u.UnitsError):
+            raise self.error(key, f"cannot read it as a band; {example}") from None
+        if q.unit.physical_type not in ("energy", "length"):
+            raise self.error(key, f"band limits must be energies or wavelengths; {example}")
+        if not (np.all(np.isfinite(q.value)) and np.all(q.value > 0) and q[0] != q[1]):
+            raise self.error(key, "band limits must be positive, finite and different")
+        return q
+
     def boolean(self, key: str, *, required: bool = False, default: Any = None) -> bool | None:
         """true/false."""
         val = self._get(key, required, _MISSING)
@@ -318,7 +345,7 @@ def dem_from_section(sec: Section, *, em_unit="cm-3"):
             missing = [c for c in ("temperature", "dem") if c not in t.colnames]
             if missing:
                 raise sec.error("file", f"table lacks column(s) {missing}; needs 'temperature' (K) and 'dem' "
-                                        f"({dem__ustr(unit)})")
+                                        f"({_ustr(dem_unit)})")
             temp = t["temperature"] if isinstance(t["temperature"], u.Quantity) else t["temperature"] * u.K
             dem = t["dem"] if isinstance(t["dem"], u.Quantity) else np.asarray(t["dem"]) * dem_unit
         else:
