@@ -158,6 +158,8 @@ class AbundanceSet:
     note : str
         Free-text remarks, e.g. which requested elements are absent (zero).
 
+    Notes
+    -----
     ``values`` is stored read-only. ``set[symbol]`` returns the abundance, 0.0 for
     an element H..Zn that the set does not give; an unknown symbol raises
     :class:`~synthcorona.validation.InputError`.
