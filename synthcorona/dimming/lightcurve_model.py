@@ -43,6 +43,8 @@ class DimmingLightCurveModel:
         Supplies the bands, quiescent rates, depth per gram, onset duration, default recovery
         time, flare excess and background.
 
+    Notes
+    -----
     Calling convention (hot path): ``model(times, mass=..., t0=..., recovery_time=...,
     flare_scale=...)``. ``times`` are bin centres (a time Quantity, or plain floats in seconds),
     bins of ``bin_width`` (default the scenario's). Parameters may be Quantities or plain

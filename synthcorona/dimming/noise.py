@@ -215,7 +215,7 @@ class RedNoise:
         rms of the relative fluctuation delta(t), in [0, 1]. Values above ~0.3 are clipped
         noticeably at delta = -1 (the rate cannot go negative).
     timescale : Quantity [time]
-        Damping timescale tau (> 0): the autocorrelation is exp(-|dt| / tau).
+        Damping timescale tau (> 0): the autocorrelation is ``exp(-|dt| / tau)``.
     """
 
     amplitude: float
@@ -413,6 +413,8 @@ class CountSampler:
     start_time : Quantity [time]
         Left edge of the first bin (only sets the absolute times; results do not depend on it).
 
+    Notes
+    -----
     Calling the sampler, ``sampler(n_realisations, seed, chunk_size)``, returns an iterator
     of int64 arrays of shape (rows, n_columns) with ``rows <= chunk_size``; this is the
     ``null_sampler`` interface of :func:`synthcorona.dimming.statistics.calibrate_threshold`.

@@ -170,9 +170,10 @@ def lightcurve_from_em_series(em, instrument, distance, nh=None, bands=None, tab
 
     Returns
     -------
-    xarray.Dataset with ``count_rate`` (band, time) [ct/s], ``emission_measure`` (time) [cm-3],
-    the re-gridded EM ``em_on_table_grid`` (time, logT) [cm-3], coordinates ``time`` (s from the
-    first output time or as given) and ``band``; attrs give the provenance.
+    xarray.Dataset
+        With ``count_rate`` (band, time) [ct/s], ``emission_measure`` (time) [cm-3],
+        the re-gridded EM ``em_on_table_grid`` (time, logT) [cm-3], coordinates ``time`` (s from the
+        first output time or as given) and ``band``; attrs give the provenance.
 
     Raises
     ------
