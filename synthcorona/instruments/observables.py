@@ -326,8 +326,9 @@ def hardness_ratio(instrument, dem, hard="hard", soft="soft", nh=None, table=Non
 
     Returns
     -------
-    Quantity (dimensionless), DEM batch shape, in [-1, 1]; NaN where both bands record no
-    counts (the ratio is undefined there).
+    Quantity (dimensionless)
+        DEM batch shape, in [-1, 1]; NaN where both bands record no
+        counts (the ratio is undefined there).
     """
     rates = instrument.count_rate(dem, distance=1 * u.pc if _is_volume(dem) else None,
                                   solid_angle=None if _is_volume(dem) else 1 * u.sr,
@@ -391,8 +392,9 @@ def counts_to_flux(instrument, band=None, flux_band=None, nh=None, absorbed: boo
 
     Returns
     -------
-    xarray.DataArray in erg cm-2 ct-1: dims ("logT",) for isothermal plasma, or the DEM batch
-    dims ("dem",) / ("dem_0", "dem_1", ...) with ``dem``. NaN where the band records no counts.
+    xarray.DataArray
+        In erg cm-2 ct-1: dims ("logT",) for isothermal plasma, or the DEM batch
+        dims ("dem",) / ("dem_0", "dem_1", ...) with ``dem``. NaN where the band records no counts.
     """
     nhv = nh_value(nh)
     if band is None:

@@ -62,8 +62,9 @@ def plot_effective_area(*instruments, axis: str = "energy", ax=None, logy: bool 
 
     Returns
     -------
-    matplotlib.figure.Figure; one line per instrument, labelled with its name. The area is
-    the bin value (cm^2) at each energy-bin centre.
+    matplotlib.figure.Figure
+        One line per instrument, labelled with its name. The area is
+        the bin value (cm^2) at each energy-bin centre.
     """
     insts = _flatten(instruments, Instrument, "instruments")
     if axis not in ("energy", "wavelength"):
@@ -155,9 +156,10 @@ def plot_folded_spectrum(instrument: Instrument, spectrum: xr.DataArray, edges=N
 
     Returns
     -------
-    matplotlib.figure.Figure. Top: the photon flux density of the input spectrum. Bottom:
-    counts s^-1 keV^-1 per channel (per energy bin without a redistribution matrix), drawn as
-    steps over channel energy.
+    matplotlib.figure.Figure
+        Top: the photon flux density of the input spectrum. Bottom:
+        counts s^-1 keV^-1 per channel (per energy bin without a redistribution matrix), drawn as
+        steps over channel energy.
     """
     if not isinstance(instrument, Instrument):
         raise InputError(f"instrument={instrument!r:.60} is not an Instrument")

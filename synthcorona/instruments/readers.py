@@ -276,8 +276,9 @@ def read_arf(path) -> AreaData:
 
     Returns
     -------
-    AreaData with energy_lo, energy_hi (keV), area (cm^2), meta (header keywords) and
-    provenance (path and SHA-256).
+    AreaData
+        With energy_lo, energy_hi (keV), area (cm^2), meta (header keywords) and
+        provenance (path and SHA-256).
 
     Raises
     ------
@@ -326,7 +327,10 @@ def write_arf(path, energy_lo, energy_hi, area, *, telescope: str = "NONE", inst
         Write 8-byte reals (format 'D') instead of the standard's 4-byte reals ('E').
     overwrite : bool
 
-    Returns the path written.  The bins are validated exactly as in :class:`Instrument`.
+    Returns
+    -------
+    Path
+        The path written.  The bins are validated exactly as in :class:`Instrument`.
     """
     inst = Instrument("arf", energy_lo, energy_hi, area)   # validates units, order, overlaps, area >= 0
     fmt = "D" if double else "E"
@@ -368,8 +372,9 @@ def read_rmf(path) -> RedistributionData:
 
     Returns
     -------
-    RedistributionData (see its docstring).  ``includes_area`` tells whether the matrix
-    contains the effective area (HDUCLAS3 = 'FULL').
+    RedistributionData
+        See its docstring.  ``includes_area`` tells whether the matrix
+        contains the effective area (HDUCLAS3 = 'FULL').
     """
     p = _existing_file(path, "RMF")
     what = "RMF"
@@ -511,6 +516,8 @@ def write_rmf(path, energy_lo, energy_hi, matrix, channel_lo, channel_hi, *, fir
     includes_area : bool
         Write EXTNAME 'SPECRESP MATRIX' with HDUCLAS3 'FULL' instead of 'MATRIX'/'REDIST'.
 
+    Notes
+    -----
     Method: each energy row is split into groups of contiguous channels with elements
     above ``threshold``; N_GRP is a scalar column, F_CHAN, N_CHAN and MATRIX are
     variable-length arrays ('PJ()', 'PE()').  CHECKSUM/DATASUM are written.
@@ -698,6 +705,8 @@ def read_area_table(path, *, units=None, negative_area: str = "raise", name: str
     name, bands, description
         Passed to :class:`Instrument`; ``name`` defaults to the file stem.
 
+    Notes
+    -----
     The first column is an energy or a wavelength (detected from its units, any energy,
     frequency or length unit); the second an area (any area unit, stored in cm^2).  The
     rows are point samples of A(x); see :meth:`Instrument.from_samples` for how they
@@ -796,6 +805,8 @@ def read_chianti_area(name: str, chianti_root=None, *, negative_area: str = "rai
     bands : dict, optional
         Photon-energy bands of the instrument.
 
+    Notes
+    -----
     Format: two columns, wavelength (Angstrom) and effective area (cm^2), ascending in
     wavelength; repeated wavelengths mark steps at absorption edges (CHIANTI
     ``ancillary_data/README``).  Converted with :meth:`Instrument.from_samples`.  The file

@@ -637,10 +637,13 @@ class Instrument:
 
         Returns
         -------
-        Quantity, shape (..., n_channels), counts s^-1 per channel (per instrument energy
-        bin when there is no redistribution matrix).
+        Quantity
+            Shape (..., n_channels), counts s^-1 per channel (per instrument energy
+            bin when there is no redistribution matrix).
 
-        Method: ``R @ diag(A) @ O @ f`` with the cached sparse matrix of
+        Method
+        ------
+        ``R @ diag(A) @ O @ f`` with the cached sparse matrix of
         :meth:`response_matrix` (see module docstring).  Raises :class:`InputError` if
         the grid misses part of the energy range where the instrument responds.
         """
@@ -671,8 +674,9 @@ class Instrument:
 
         Returns
         -------
-        ndarray (n_bands, n_input_bins), float, read-only: counts s^-1 in band b per
-        (photon s^-1 cm^-2) in input bin j.  Row order follows ``bands``.
+        ndarray (n_bands, n_input_bins)
+            Float, read-only: counts s^-1 in band b per
+            (photon s^-1 cm^-2) in input bin j.  Row order follows ``bands``.
 
         Method
         ------
@@ -928,11 +932,12 @@ class Instrument:
 
         Returns
         -------
-        xarray.DataArray, dims ("band", "logT"), units ``attrs["units"]`` = "cm3 ct / s"
-        (counts s^-1 per cm^-3 of EM at the reference distance 1 pc); coordinates ``band_lo``,
-        ``band_hi`` (keV; the instrument's response range for "total"). ``attrs`` carry the
-        reference distance, absorption, abundances (with the note on missing elements),
-        density model, table provenance and the instrument's name and provenance.
+        xarray.DataArray
+            Dims ("band", "logT"), units ``attrs["units"]`` = "cm3 ct / s"
+            (counts s^-1 per cm^-3 of EM at the reference distance 1 pc); coordinates ``band_lo``,
+            ``band_hi`` (keV; the instrument's response range for "total"). ``attrs`` carry the
+            reference distance, absorption, abundances (with the note on missing elements),
+            density model, table provenance and the instrument's name and provenance.
 
         Method
         ------
@@ -1033,8 +1038,9 @@ class Instrument:
 
         Returns
         -------
-        Quantity in counts s^-1, shape batch (+ (n_bands,)). See :meth:`count_rates` for the
-        same numbers as a labelled xarray.DataArray with provenance.
+        Quantity
+            In counts s^-1, shape batch (+ (n_bands,)). See :meth:`count_rates` for the
+            same numbers as a labelled xarray.DataArray with provenance.
 
         Method
         ------
