@@ -434,19 +434,24 @@ def _hardness_pairs(hardness, labels: list[str]) -> list[tuple[str, str]]:
 
 
 def _reference_scenario(reference):
+    """A DimmingScenario, or forecast-file inputs (anything with ``build_scenario`` and ``corona``)."""
     from .dimming.scenario import DimmingScenario
 
-    scen = getattr(reference, "scenario", reference)
-    if not isinstance(scen, DimmingScenario):
-        raise InputError(f"reference={reference!r} must be a DimmingScenario (or an object with .scenario)")
-    return scen
+    if isinstance(reference, DimmingScenario) or (hasattr(reference, "build_scenario")
+                                                  and hasattr(reference, "corona")):
+        return reference
+    raise InputError(f"reference={reference!r} must be a DimmingScenario or forecast-file inputs "
+                     "(synthcorona.scenario_file.read_forecast_file)")
 
 
 def _phase_scenario(ref, dem: DEM, star):
-    """The reference scenario with the corona's DEM swapped for ``dem`` and the cycle's star."""
+    """The reference scenario with the corona's DEM swapped for ``dem`` (``dataclasses.replace``) and the
+    cycle's star."""
     from .dimming.scenario import DimmingScenario
 
     corona = dataclasses.replace(ref.corona, dem=dem)
+    if not isinstance(ref, DimmingScenario):          # forecast-file inputs
+        return ref.build_scenario(star=star, corona=corona)
     return DimmingScenario(star, corona, ref.cme, ref.flare, {lab: (ins, b) for lab, ins, b in ref.bands},
                            ref.observation, recovery=ref.recovery, upflow_fraction=ref.upflow_fraction)
 
@@ -472,8 +477,9 @@ def compare_cycle(phases: Sequence[CyclePhase], star, *, bands=None, instruments
         Default: every reported instrument with bands "hard" and "soft".
     conversion : :class:`CountConversion`, optional
         Counts-to-flux conversion to report per phase.
-    reference : :class:`~synthcorona.dimming.DimmingScenario` (or an object with ``.scenario``), optional
-        Reference CME scenario whose detectability is followed across the cycle.
+    reference : :class:`~synthcorona.dimming.DimmingScenario` or forecast-file inputs, optional
+        Reference CME scenario whose detectability is followed across the cycle (the result of
+        :func:`synthcorona.scenario_file.read_forecast_file` is accepted too).
     n_realisations : int
         Monte Carlo realisations of the detection probability (``false_alarm * n >= 10``).
     seed : int
@@ -670,7 +676,7 @@ def compare_cycle(phases: Sequence[CyclePhase], star, *, bands=None, instruments
 
 def _dimming(data, coords, attrs, ref, dems, phases, star, n_real, seed, minimum_mass):
     """Depth, detection probability (and minimum mass) of the reference CME at every phase (in place)."""
-    labels = list(ref.labels)
+    labels = list(ref.labels) if hasattr(ref, "labels") else list(ref.instrument)
     n_p, n_b = len(dems), len(labels)
     depth = np.full((n_p, n_b), np.nan)
     quiet = np.full((n_p, n_b), np.nan)

@@ -7,4 +7,6 @@ COMMANDS = [
     "build_table",
     "table_info",
     "emission",
+    "cycle",
+    "list_items",
 ]

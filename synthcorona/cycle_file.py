@@ -1,0 +1,232 @@
+"""Activity-cycle files: a TOML description of a star's corona phase by phase -> :class:`CycleInputs`.
+
+:func:`read_cycle_file` reads the top-level keys (``title``, ``period``, ``abundances``,
+``density``, ``reference_scenario``) and the tables ``[star]``, ``[report]`` (with
+``[report.bands]``), ``[conversion]``, ``[dimming]`` and ``[[phase]]`` (each with a
+``[phase.dem]`` table or ``flux`` + ``band`` + ``temperature``), checking every key (type, unit,
+range; unknown keys refused) with :class:`synthcorona.config.Section`. A reference CME scenario
+is read with :func:`synthcorona.scenario_file.read_forecast_file`. Every key, unit and default is
+documented in ``docs/cycle_reference.md``; :meth:`CycleInputs.run` calls
+:func:`synthcorona.cycle.compare_cycle`.
+"""
+from __future__ import annotations
+
+import pathlib
+from dataclasses import dataclass, field
+from typing import Any
+
+import astropy.units as u
+
+from .config import ScenarioError, Section, abundances_from_key, dem_from_section, load_toml
+from .validation import InputError
+
+__all__ = ["CycleInputs", "read_cycle_file", "DEFAULT_BANDS", "DEFAULT_REALISATIONS"]
+
+#: Bands of the fluxes when ``[report.bands]`` is absent.
+DEFAULT_BANDS = {"0.1-2.4 keV": [0.1, 2.4] * u.keV, "100-400 Angstrom": [100.0, 400.0] * u.AA}
+#: Monte Carlo realisations when neither ``[dimming] realisations`` nor the reference file gives them.
+DEFAULT_REALISATIONS = 1000
+
+
+@dataclass
+class CycleInputs:
+    """Everything a cycle file defines; :meth:`run` computes the comparison."""
+
+    title: str
+    star: Any
+    star_name: str | None
+    phases: list
+    bands: dict
+    instruments: list
+    hardness: list | None
+    conversion: Any
+    reference: Any
+    n_realisations: int
+    seed: int
+    minimum_mass: bool
+    abundances: Any
+    density: u.Quantity | None
+    period: u.Quantity | None
+    source: str
+    reference_path: str | None = None
+    extra: dict = field(default_factory=dict)
+
+    def run(self, n_realisations: int | None = None):
+        """:func:`synthcorona.cycle.compare_cycle` with these inputs (``n_realisations`` overrides the file)."""
+        from .cycle import compare_cycle
+
+        ds = compare_cycle(self.phases, self.star, bands=self.bands, instruments=self.instruments or None,
+                           hardness=self.hardness, conversion=self.conversion, reference=self.reference,
+                           n_realisations=n_realisations or self.n_realisations, seed=self.seed,
+                           minimum_mass=self.minimum_mass, abundances=self.abundances, density=self.density,
+                           period=self.period, name=self.star_name or self.title)
+        ds.attrs["cycle_file"] = self.source
+        ds.attrs["cycle_title"] = self.title
+        if self.reference_path:
+            ds.attrs["reference_scenario_file"] = self.reference_path
+        return ds
+
+
+def _wrap(where: str, fn, *args, **kwargs):
+    """Call ``fn``; an :class:`InputError` from it becomes a ScenarioError prefixed by ``where``."""
+    try:
+        return fn(*args, **kwargs)
+    except ScenarioError:
+        raise
+    except InputError as exc:
+        raise ScenarioError(f"{where}: {exc}") from None
+
+
+def _star(root: Section):
+    from .dimming.scenario import Star
+
+    s = root.section("star", required=True)
+    name = s.string("name", default=None)
+    dist = s.quantity("distance", u.pc, required=True, lo=0.0, lo_inclusive=False, hi=1e4)
+    nh = s.quantity("nh", u.cm ** -2, default=None, lo=0.0, hi=1e24)
+    radius = s.quantity("radius", u.R_sun, default=None, lo=0.0, lo_inclusive=False, hi=1e4)
+    s.finish()
+    return _wrap(s.where(), Star, distance=dist, nh=nh, radius=radius), name
+
+
+def _phase_value(p: Section):
+    """``phase``: a plain number (cycle fraction in [0, 1)) or a time with a unit ("3 yr")."""
+    v = p.raw("phase", required=True)
+    if isinstance(v, str):
+        return p.quantity("phase", u.yr, lo=-1e4, hi=1e4)
+    return p.number("phase", lo=0.0, hi=1.0, hi_inclusive=False)
+
+
+def _phases(root: Section) -> list:
+    from .cycle import CyclePhase
+
+    secs = root.sections("phase", required=True)
+    if len(secs) < 2:
+        raise ScenarioError(f"{root.file}: [[phase]]: a cycle needs at least two phases; found {len(secs)}")
+    out, kinds, seen = [], set(), {}
+    for p in secs:
+        label = p.string("label", required=True)
+        if label in seen:
+            raise p.error("label", f"repeats the label of {seen[label]}; labels must be unique")
+        seen[label] = f"[{p.path}]"
+        phase = _phase_value(p)
+        kinds.add(isinstance(phase, u.Quantity))
+        if len(kinds) > 1:
+            raise p.error("phase", "mixes cycle fractions (plain numbers in [0, 1)) and times (\"3 yr\"); give "
+                                   "every phase the same way")
+        dsec = p.section("dem")
+        flux_keys = [k for k in ("flux", "band", "temperature", "width_dex") if p.has(k)]
+        if dsec is not None and flux_keys:
+            raise p.error(flux_keys[0], "give either a [phase.dem] table or flux + band + temperature, not both")
+        if dsec is not None:
+            dem = dem_from_section(dsec, em_unit=u.cm ** -3)
+            phase_obj = _wrap(p.where(), CyclePhase, label, phase, dem=dem)
+        else:
+            if not flux_keys:
+                raise ScenarioError(f"{p.where()}: needs a [phase.dem] table, or flux, band and temperature")
+            flux = p.quantity("flux", u.erg / u.s / u.cm ** 2, required=True, lo=0.0, lo_inclusive=False)
+            band = p.band("band", required=True)
+            temp = p.quantity("temperature", u.K, required=True, lo=1e4, hi=1e9)
+            width = p.number("width_dex", default=None, lo=0.0, lo_inclusive=False, hi=3.0)
+            phase_obj = _wrap(p.where(), CyclePhase, label, phase, flux=flux, band=band, temperature=temp,
+                              width_dex=width)
+        p.finish()
+        out.append(phase_obj)
+    return out
+
+
+def _report(root: Section):
+    from .cycle import resolve_channels
+
+    r = root.section("report")
+    if r is None:
+        return dict(DEFAULT_BANDS), [], None
+    bsec = r.section("bands")
+    if bsec is None:
+        bands = dict(DEFAULT_BANDS)
+    else:
+        if not bsec.data:
+            raise ScenarioError(f"{bsec.where()}: empty; give at least one band, e.g. soft = \"0.1-2.4 keV\"")
+        bands = {k: bsec.band(k, required=True) for k in list(bsec.data)}
+        bsec.finish()
+    instruments = r.strings("instruments", default=[])
+    if instruments:
+        _wrap(r.where("instruments"), resolve_channels, list(instruments))
+    hardness = r.strings("hardness", default=None)
+    r.finish()
+    return bands, list(instruments), hardness
+
+
+def _conversion(root: Section):
+    from .cycle import CountConversion, resolve_channels
+
+    c = root.section("conversion")
+    if c is None:
+        return None
+    src = c.string("from", required=True)
+    tgt = c.string("to", required=True)
+    for key, spec in (("from", src), ("to", tgt)):
+        ch = _wrap(c.where(key), resolve_channels, spec)
+        if len(ch) != 1:
+            raise c.error(key, f"names {len(ch)} instrument bands ({', '.join(x[0] for x in ch)}); name one, e.g. "
+                               f"\"{ch[0][0]}\"")
+    rate = c.quantity("rate", u.ct / u.s, default=None, lo=0.0)
+    fb = c.band("flux_band", default=None)
+    absorbed = c.boolean("absorbed", default=False)
+    c.finish()
+    return CountConversion(src, tgt, rate=rate, flux_band=fb, absorbed=absorbed)
+
+
+def _reference(root: Section):
+    path = root.path_value("reference_scenario", default=None)
+    if path is None:
+        return None, None
+    try:
+        from .scenario_file import read_forecast_file
+    except ImportError:  # pragma: no cover - the forecast reader ships with the package
+        raise root.error("reference_scenario", "forecast scenario files cannot be read: synthcorona.scenario_file "
+                                               "is missing from this installation") from None
+    return read_forecast_file(path, build=False), str(path)
+
+
+def read_cycle_file(path_or_text, *, name: str | None = None) -> CycleInputs:
+    """Read a cycle file (TOML path or text) into :class:`CycleInputs`; keys in ``docs/cycle_reference.md``.
+
+    Every mistake raises :class:`~synthcorona.config.ScenarioError` naming the file and the key.
+    """
+    root = load_toml(path_or_text, name=name)
+    is_file = root.file != "<string>" and pathlib.Path(root.file).is_file()
+    title = root.string("title", default=pathlib.Path(root.file).stem if is_file else "activity cycle")
+    period = root.quantity("period", u.yr, default=None, lo=0.0, lo_inclusive=False, hi=1e4)
+    reference, ref_path = _reference(root)
+    if root.has("abundances") or reference is None:
+        abundances = abundances_from_key(root, "abundances", default="coronal")
+    else:
+        abundances = reference.corona.abundances
+    density = root.quantity("density", u.cm ** -3, default=None, lo=1e6, hi=1e13)
+    star, star_name = _star(root)
+    phases = _phases(root)
+    if period is not None and not isinstance(phases[0].phase, u.Quantity):
+        raise root.error("period", "applies to phases given as times (\"3 yr\"); these phases are cycle fractions")
+    bands, instruments, hardness = _report(root)
+    if hardness is not None:
+        from .cycle import _hardness_pairs, resolve_channels
+
+        labels = [c[0] for c in resolve_channels(instruments)] if instruments else []
+        _wrap(f"{root.file}: [report] hardness", _hardness_pairs, hardness, labels)
+    conversion = _conversion(root)
+    d = root.section("dimming")
+    mc = getattr(reference, "montecarlo", None)
+    n_real, seed, min_mass = (getattr(mc, "realisations", DEFAULT_REALISATIONS), getattr(mc, "seed", 0), False)
+    if d is not None:
+        if reference is None:
+            raise ScenarioError(f"{d.where()}: needs reference_scenario = \"<forecast file>\" at the top of the file")
+        n_real = d.number("realisations", default=n_real, integer=True, lo=1, hi=10_000_000)
+        seed = d.number("seed", default=seed, integer=True, lo=0)
+        min_mass = d.boolean("minimum_mass", default=False)
+        d.finish()
+    root.finish()
+    return CycleInputs(title=title, star=star, star_name=star_name, phases=phases, bands=bands,
+                       instruments=instruments, hardness=hardness, conversion=conversion, reference=reference,
+                       n_realisations=int(n_real), seed=int(seed), minimum_mass=bool(min_mass), abundances=abundances,
+                       density=density, period=period, source=root.file, reference_path=ref_path)
