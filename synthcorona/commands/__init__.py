@@ -4,6 +4,8 @@ Each module defines ``NAME`` (the subcommand), ``HELP`` (one line), ``add_argume
 ``run(args) -> int``. :data:`COMMANDS` lists the modules in the order ``--help`` shows them.
 """
 COMMANDS = [
+    "forecast",
+    "spectrum",
     "build_table",
     "table_info",
     "emission",
