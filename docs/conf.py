@@ -1,0 +1,53 @@
+"""Sphinx configuration for the synthcorona documentation.
+
+Build (warnings are errors, as in CI)::
+
+    python -m sphinx -W --keep-going -b html docs docs/_build/html
+"""
+import os
+import sys
+
+sys.path.insert(0, os.path.abspath(".."))
+
+project = "synthcorona"
+author = "the synthcorona developers"
+copyright = "2026, the synthcorona developers"
+
+try:
+    from importlib.metadata import version as _version
+
+    release = _version("synthcorona")
+except Exception:  # pragma: no cover - docs built from a checkout without installing
+    release = "0.1.0"
+version = release
+
+extensions = [
+    "sphinx.ext.autodoc",
+    "sphinx.ext.napoleon",
+    "sphinx.ext.mathjax",
+    "sphinx.ext.viewcode",
+    "myst_parser",
+]
+
+source_suffix = {".rst": "restructuredtext", ".md": "markdown"}
+root_doc = "index"
+exclude_patterns = ["_build", "Thumbs.db", ".DS_Store"]
+
+# Building the documentation must never import fiasco (it may try the network on import).
+autodoc_mock_imports = ["fiasco", "plasmapy"]
+autodoc_member_order = "bysource"
+autodoc_default_options = {"show-inheritance": True}
+
+napoleon_numpy_docstring = True
+napoleon_google_docstring = False
+napoleon_use_rtype = False
+napoleon_use_ivar = True  # "Attributes" sections as fields, so properties are not described twice
+napoleon_custom_sections = ["Method"]  # used after "Parameters" in several docstrings
+
+myst_enable_extensions = ["dollarmath"]
+myst_heading_anchors = 3
+
+nitpicky = False
+
+html_theme = "alabaster"
+html_title = f"synthcorona {release}"
