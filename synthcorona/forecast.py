@@ -119,7 +119,7 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
     sd = int(mc.seed if seed is None else seed)
     if sd < 0:
         raise InputError(f"seed={sd} must be a non-negative integer")
-    nshow = int(inputs.output.get("show_realisations", 3) if show_realisations is None else show_realisations)
+    nshow = int(inputs.output.get("show_realisations", 2) if show_realisations is None else show_realisations)
     stat = mc.statistic
     labels = list(sc.labels)
     nb = len(labels)

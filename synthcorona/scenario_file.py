@@ -420,7 +420,7 @@ def _output(root: Section):
         o = Section({}, "output", root.file)
     out = dict(report=o.string("report", default="md", choices=("md", "html", "both", "none")),
                figures=o.boolean("figures", default=True),
-               show_realisations=o.number("show_realisations", default=3, lo=0, hi=50, integer=True),
+               show_realisations=o.number("show_realisations", default=2, lo=0, hi=50, integer=True),
                spectrum_range=o.band("spectrum_range", default=u.Quantity([1.0, 400.0], u.AA)),
                spectrum_bin=o.quantity("spectrum_bin", u.AA, default=0.05 * u.AA, lo=1e-4, hi=100.0))
     if o.has("flux_bands"):

@@ -53,7 +53,7 @@ def _figures(ds, sc) -> dict:
             rows = ds["counts_without_cme"].sel(band=b).values
             for i, row in enumerate(rows):
                 ax.step(t_h, row / ds.attrs["bin_width_s"], where="mid", lw=0.6, alpha=0.5, color="tab:cyan",
-                        label="realisations (without CME)" if i == 0 else None)
+                        zorder=0, label="realisations (without CME)" if i == 0 else None)
             ax.legend(fontsize="x-small", loc="best")
     figs["light_curves"] = ("light_curves.png", fig, "Expected light curves with (red) and without (blue) the CME, "
                                                      "with Poisson realisations of both; dotted line: CME onset.")
