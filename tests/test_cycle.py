@@ -17,22 +17,24 @@ from synthcorona.synthesis import band_flux
 EXAMPLE = pathlib.Path(__file__).parent.parent / "examples" / "cycle" / "corvan9_cycle.toml"
 FLUX = u.erg / u.s / u.cm ** 2
 KB_KEV = 8.617333262e-8  # Boltzmann constant in keV/K (CODATA 2018)
+# N_H and density of the example cycle file: tests using them share its cached instrument responses.
+NH, DENSITY = 3e17 * u.cm ** -2, 2e9 * u.cm ** -3
 
 
 def test_count_rate_conversion_round_trip_and_direct_rates():
     dem = GaussianDEM(6.4, 0.2, 1e51 * u.cm ** -3) + IsothermalDEM(8 * u.MK, 1e50 * u.cm ** -3)
-    nh = 5e18 * u.cm ** -2
+    nh, dens = NH, DENSITY
     rate = 2.0 * u.ct / u.s
-    fwd = convert_count_rate(rate, dem, "sc-sxt:broad", "sc-euv193", nh=nh)
-    back = convert_count_rate(fwd.rate, dem, "sc-euv193", "sc-sxt:broad", nh=nh)
+    fwd = convert_count_rate(rate, dem, "sc-sxt:broad", "sc-euv193", nh=nh, density=dens)
+    back = convert_count_rate(fwd.rate, dem, "sc-euv193", "sc-sxt:broad", nh=nh, density=dens)
     assert back.rate.to_value(u.ct / u.s) == pytest.approx(2.0, rel=1e-6)
     # The target rate is what the instrument itself predicts for the DEM scaled to the source rate.
-    r_src = load_generic("sc-sxt").count_rate(dem, distance=5 * u.pc, nh=nh, band="broad").value
-    r_tgt = load_generic("sc-euv193").count_rate(dem, distance=5 * u.pc, nh=nh, band="total").value
+    r_src = load_generic("sc-sxt").count_rate(dem, distance=5 * u.pc, nh=nh, band="broad", density=dens).value
+    r_tgt = load_generic("sc-euv193").count_rate(dem, distance=5 * u.pc, nh=nh, band="total", density=dens).value
     assert fwd.rate.value == pytest.approx(2.0 * r_tgt / r_src, rel=1e-9)
     # The flux is the DEM's unabsorbed flux in the target band scaled the same way.
     lo, hi = load_generic("sc-euv193").energy_range
-    f = band_flux(dem, u.Quantity([lo, hi]), 5 * u.pc).to_value(FLUX)
+    f = band_flux(dem, u.Quantity([lo, hi]), 5 * u.pc, density=dens).to_value(FLUX)
     assert fwd.flux.to_value(FLUX) == pytest.approx(2.0 * f / r_src, rel=1e-6)
 
 
@@ -51,20 +53,22 @@ def test_flux_phase_reproduces_measured_flux(width):
 
 
 def test_hardness_and_amplitude_equal_direct_computation():
-    star = Star(distance=4 * u.pc, nh=1e18 * u.cm ** -2)
+    star = Star(distance=4 * u.pc, nh=NH)
     dems = [GaussianDEM(6.2, 0.2, 5e50 * u.cm ** -3),
             [GaussianDEM(6.4, 0.15, 2e51 * u.cm ** -3), IsothermalDEM(9 * u.MK, 3e50 * u.cm ** -3)],
             GaussianDEM(6.3, 0.2, 1e51 * u.cm ** -3)]
     phases = [CyclePhase(f"p{k}", k * 2.5 * u.yr, dem=d) for k, d in enumerate(dems)]
     band = [0.5, 2.0] * u.keV
-    ds = compare_cycle(phases, star, bands={"b": band}, instruments=["sc-sxt"])
+    ds = compare_cycle(phases, star, bands={"b": band}, instruments=["sc-sxt"], density=DENSITY)
     sxt = load_generic("sc-sxt")
     resolved = [p.resolve(star.distance) for p in phases]
-    h = np.array([sxt.count_rate(d, distance=star.distance, nh=star.nh, band="hard").value for d in resolved])
-    s = np.array([sxt.count_rate(d, distance=star.distance, nh=star.nh, band="soft").value for d in resolved])
+    h = np.array([sxt.count_rate(d, distance=star.distance, nh=star.nh, band="hard", density=DENSITY).value
+                  for d in resolved])
+    s = np.array([sxt.count_rate(d, distance=star.distance, nh=star.nh, band="soft", density=DENSITY).value
+                  for d in resolved])
     np.testing.assert_allclose(ds["hardness_ratio"].values[:, 0], (h - s) / (h + s), rtol=1e-10)
     np.testing.assert_allclose(ds["band_ratio"].values[:, 0], h / s, rtol=1e-10)
-    f = np.array([band_flux(d, band, star.distance).to_value(FLUX) for d in resolved])
+    f = np.array([band_flux(d, band, star.distance, density=DENSITY).to_value(FLUX) for d in resolved])
     assert ds["flux_amplitude"].values[0] == pytest.approx(f.max() / f.min(), rel=1e-10)
     assert ds["flux_log_amplitude"].values[0] == pytest.approx(np.log10(f.max() / f.min()), rel=1e-10)
     rate_h = ds["count_rate"].sel(channel="sc-sxt:hard").values
