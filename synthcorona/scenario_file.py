@@ -15,6 +15,7 @@ energy with :func:`flare_energy_from_class`.
 from __future__ import annotations
 
 import dataclasses
+import math
 import pathlib
 import re
 import warnings
@@ -386,13 +387,16 @@ def _observation(root: Section, labels):
     return _wrap(o, None, Observation, exposure=exposure, bin_width=bw, pre_event=pre, background=bg, false_alarm=fa)
 
 
-def _montecarlo(root: Section, mass):
+def _montecarlo(root: Section, mass, false_alarm: float):
     m = root.section("montecarlo")
     if m is None:
         m = Section({}, "montecarlo", root.file)
     mc = MonteCarlo(realisations=m.number("realisations", default=2000, lo=100, hi=1_000_000, integer=True),
                     seed=m.number("seed", default=0, lo=0, hi=2 ** 63 - 1, integer=True),
                     statistic=m.string("statistic", default="window", choices=STATISTICS))
+    if mc.realisations * false_alarm < 10:
+        raise m.error("realisations", f"too few to calibrate the detection threshold at [observation] false_alarm = "
+                                      f"{false_alarm:g}: give at least {math.ceil(10 / false_alarm)} (10 / false_alarm)")
     target = m.number("target_probability", default=0.5, lo=0.0, lo_inclusive=False, hi=1.0, hi_inclusive=False)
     if m.has("mass_grid") and isinstance(m.data["mass_grid"], dict):
         g = m.section("mass_grid")
@@ -467,7 +471,7 @@ def read_forecast_file(path_or_text, *, name: str | None = None, build: bool = T
                                     "different names (name = \"...\")")
             spec[label] = (inst, b)
     observation = _observation(root, list(spec))
-    mc, grid, target = _montecarlo(root, cme.mass)
+    mc, grid, target = _montecarlo(root, cme.mass, observation.false_alarm)
     output = _output(root)
     root.finish()
     from .dimming.scenario import DimmingScenario

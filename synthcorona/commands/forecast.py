@@ -22,8 +22,8 @@ def add_arguments(p) -> None:
     p.add_argument("scenario", help="forecast scenario file (TOML; every quantity a string with a unit)")
     p.add_argument("--out", default="forecast_out", help="output folder (created if needed; default 'forecast_out')")
     p.add_argument("--realisations", type=int, default=None,
-                   help="Monte Carlo realisations per probability (a count, dimensionless; >= 10 / false-alarm "
-                        "probability; default: the file's [montecarlo] realisations)")
+                   help="Monte Carlo realisations per probability (a count, dimensionless; 100-1e6 and >= 10 / "
+                        "false-alarm probability; default: the file's [montecarlo] realisations)")
     p.add_argument("--seed", type=int, default=None,
                    help="integer seed of every random draw (dimensionless; default: the file's [montecarlo] seed)")
     p.add_argument("--report", choices=("md", "html", "both", "none"), default=None,
@@ -151,8 +151,9 @@ def run(args) -> int:
     import warnings
 
     t_start = time.perf_counter()
-    if args.realisations is not None and args.realisations < 1:
-        raise CliError(f"--realisations={args.realisations}: give a positive count (>= 10 / false-alarm probability)")
+    if args.realisations is not None and not 100 <= args.realisations <= 1_000_000:
+        raise CliError(f"--realisations={args.realisations}: valid range [100, 1000000] and at least 10 / false-alarm "
+                       "probability (1000 for 0.01)")
     if args.seed is not None and args.seed < 0:
         raise CliError(f"--seed={args.seed}: give a non-negative integer")
     from ..forecast import run_forecast

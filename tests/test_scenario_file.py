@@ -1,0 +1,197 @@
+"""Forecast scenario files: every value read with its unit, every mistake named by file and key."""
+import pathlib
+import warnings
+
+import astropy.units as u
+import numpy as np
+import pytest
+
+from synthcorona.config import ScenarioError
+from synthcorona.scenario_file import flare_energy_from_class, read_forecast_file
+
+EXAMPLES = pathlib.Path(__file__).parent.parent / "examples" / "scenarios"
+
+BASE = """
+[scenario]
+title = "test star"
+
+[star]
+distance = "5 pc"
+nh = "1e18 cm-2"
+
+[corona]
+density = "2e9 cm-3"
+
+[corona.dem]
+model = "gaussian"
+peak_temperature = "2 MK"
+width_dex = 0.2
+emission_measure = "1e51 cm-3"
+
+[cme]
+mass = "1e16 g"
+source_temperature = "2 MK"
+
+[flare]
+energy = "1e32 erg"
+
+[[instrument]]
+generic = "sc-euv171"
+
+[observation]
+exposure = "6 h"
+bin_width = "60 s"
+pre_event = "1 h"
+
+[montecarlo]
+realisations = 1000
+seed = 3
+"""
+
+
+def _write(tmp_path, text, name="scen.toml"):
+    p = tmp_path / name
+    p.write_text(text)
+    return p
+
+
+def _read(tmp_path, text, build=False):
+    return read_forecast_file(_write(tmp_path, text), build=build)
+
+
+def test_values_and_units(tmp_path):
+    fi = _read(tmp_path, BASE + '\n[output]\nreport = "html"\n')
+    assert fi.star.distance.to_value(u.pc) == pytest.approx(5.0, rel=1e-12)
+    assert fi.star.nh.to_value(u.cm ** -2) == pytest.approx(1e18, rel=1e-12)
+    assert fi.corona.density.to_value(u.cm ** -3) == pytest.approx(2e9, rel=1e-12)
+    assert fi.cme.mass.to_value(u.g) == pytest.approx(1e16, rel=1e-12)
+    assert fi.cme.source_temperature.to_value(u.K) == pytest.approx(2e6, rel=1e-12)
+    assert fi.flare.energy.to_value(u.erg) == pytest.approx(1e32, rel=1e-12)
+    assert fi.observation.exposure.to_value(u.s) == pytest.approx(6 * 3600, rel=1e-12)
+    assert fi.montecarlo.realisations == 1000 and fi.montecarlo.seed == 3 and fi.montecarlo.statistic == "window"
+    assert list(fi.instrument) == ["sc-euv171"] and fi.instrument["sc-euv171"][1] == "total"
+    assert fi.output["report"] == "html" and fi.title == "test star"
+    assert fi.source.endswith("scen.toml") and "[cme]" in fi.raw_text and fi.scenario is None
+    # default mass grid: 9 masses from M/30 to 3 M, log-spaced (documented default)
+    np.testing.assert_allclose(fi.mass_grid.to_value(u.g), np.geomspace(1e16 / 30, 3e16, 9), rtol=1e-12)
+
+
+def test_mass_grid_forms(tmp_path):
+    fi = _read(tmp_path, BASE.replace("seed = 3", 'seed = 3\nmass_grid = { min = "1e14 g", max = "1e18 g", points = 5 }'))
+    np.testing.assert_allclose(fi.mass_grid.to_value(u.g), [1e14, 1e15, 1e16, 1e17, 1e18], rtol=1e-12)
+    fi = _read(tmp_path, BASE.replace("seed = 3", 'seed = 3\nmass_grid = ["1e-10 Msun", "2e20 kg"]'))
+    # 1 Msun = 1.98841e33 g (IAU 2015 nominal GM_sun / G, as in astropy.constants)
+    np.testing.assert_allclose(fi.mass_grid.to_value(u.g), [1.98841e23, 2e23], rtol=1e-4)
+
+
+def test_flare_class_scaling():
+    # Soft-X-ray class letters are decades of the peak 1-8 A flux: C = 1e-6, M = 1e-5, X = 1e-4 W m-2 (NOAA
+    # classification); E = 1e32 erg for X1 (Emslie et al. 2012, ApJ 759, 71; order of magnitude, from memory).
+    assert flare_energy_from_class("X1").to_value(u.erg) == pytest.approx(1e32, rel=1e-12)
+    assert flare_energy_from_class("M2.5").to_value(u.erg) == pytest.approx(2.5e31, rel=1e-12)
+    assert flare_energy_from_class("c3").to_value(u.erg) == pytest.approx(3e30, rel=1e-12)
+
+
+def test_flare_class_in_file(tmp_path):
+    fi = _read(tmp_path, BASE.replace('energy = "1e32 erg"', 'class = "X5"'))
+    assert fi.flare.energy.to_value(u.erg) == pytest.approx(5e32, rel=1e-12)
+    assert fi.flare_class == "X5"
+
+
+def test_physics_built_instrument_matches_the_api(tmp_path):
+    from synthcorona.instruments.designs import build_instrument, default_design_grid
+
+    text = BASE.replace('[[instrument]]\ngeneric = "sc-euv171"', """[[instrument]]
+name = "probe"
+[instrument.design]
+geometric_area = "20 cm2"
+energy_min = "40 eV"
+energy_max = "2 keV"
+relative_step = 0.002
+[instrument.design.mirror]
+kind = "multilayer"
+period = "8.8 nm"
+[[instrument.design.filter]]
+material = "Al"
+thickness = "150 nm"
+[instrument.design.detector]
+depletion_depth = "15 um"
+""")
+    fi = _read(tmp_path, text)
+    inst = fi.instruments[0].instrument
+    ref = build_instrument(mirror={"kind": "multilayer", "period": 8.8 * u.nm}, filters=[("Al", 150 * u.nm)],
+                           detector={"depletion_depth": 15 * u.um}, geometric_area=20 * u.cm ** 2,
+                           energy_grid=default_design_grid(0.04 * u.keV, 2 * u.keV, 2e-3), name="probe")
+    w = [150, 171, 195] * u.AA
+    np.testing.assert_allclose(inst.effective_area(w).value, ref.effective_area(w).value, rtol=1e-12)
+    assert inst.name == "probe" and list(fi.instrument) == ["probe"]
+
+
+def test_example_files_read():
+    for p in sorted(EXAMPLES.glob("*.toml")):
+        fi = read_forecast_file(p, build=False)
+        assert fi.title and fi.cme.mass.to_value(u.g) > 0 and fi.instruments
+
+
+# ----------------------------------------------------------------------------- malformed files
+MALFORMED = [
+    ("unknown key", ('nh = "1e18 cm-2"', 'nh = "1e18 cm-2"\ncolour = "red"'), "[star] colour", "unknown key"),
+    ("unknown table", ("[scenario]", "[telescope]\nsize = 1\n\n[scenario]"), "telescope", "unknown key"),
+    ("missing key", ('distance = "5 pc"\n', ""), "[star] distance", "required key is missing"),
+    ("missing table", ('[cme]\nmass = "1e16 g"\nsource_temperature = "2 MK"\n', ""), "cme", "required"),
+    ("bad unit", ('distance = "5 pc"', 'distance = "5 kg"'), "[star] distance", "not convertible"),
+    ("no unit", ('distance = "5 pc"', "distance = 5"), "[star] distance", "needs a unit"),
+    ("negative mass", ('mass = "1e16 g"', 'mass = "-1e16 g"'), "[cme] mass", "valid range"),
+    ("distance 0", ('distance = "5 pc"', 'distance = "0 pc"'), "[star] distance", "valid range"),
+    ("non-numeric", ('mass = "1e16 g"', 'mass = "lots of g"'), "[cme] mass", "cannot read"),
+    ("wrong type", ("realisations = 1000", 'realisations = "many"'), "[montecarlo] realisations", "integer"),
+    ("wrong type table", ('\n[corona.dem]\nmodel = "gaussian"\npeak_temperature = "2 MK"\nwidth_dex = 0.2\n'
+                          'emission_measure = "1e51 cm-3"\n', 'dem = "gaussian"\n'), "[corona] dem", "must be a table"),
+    ("bad flare class", ('energy = "1e32 erg"', 'class = "Z3"'), "[flare] class", "flare class"),
+    ("energy and class", ('energy = "1e32 erg"', 'energy = "1e32 erg"\nclass = "M1"'), "[flare] class", "not both"),
+    ("unknown generic", ('generic = "sc-euv171"', 'generic = "sc-euv999"'), "[instrument[0]] generic", "available"),
+    ("unknown band", ('generic = "sc-euv171"', 'generic = "sc-euv171"\nbands = ["soft"]'), "[instrument[0]] bands",
+     "not a band"),
+    ("bad statistic", ("seed = 3", 'seed = 3\nstatistic = "chi2"'), "[montecarlo] statistic", "one of"),
+    ("too few realisations", ("realisations = 1000", "realisations = 200"), "[montecarlo] realisations", "1000"),
+    ("bad abundance set", ('density = "2e9 cm-3"', 'density = "2e9 cm-3"\nabundances = "martian"'),
+     "[corona] abundances", "known sets"),
+    ("escape fraction", ('source_temperature = "2 MK"', 'source_temperature = "2 MK"\nescape_fraction = 1.5'),
+     "[cme] escape_fraction", "valid range"),
+    ("dem model", ('model = "gaussian"', 'model = "lumpy"'), "[corona.dem] model", "one of"),
+]
+
+
+@pytest.mark.parametrize("case, edit, key, reason", MALFORMED, ids=[m[0] for m in MALFORMED])
+def test_malformed_file_names_file_and_key(tmp_path, case, edit, key, reason):
+    old, new = edit
+    assert old in BASE, case
+    p = _write(tmp_path, BASE.replace(old, new, 1), name="bad_case.toml")
+    with pytest.raises(ScenarioError) as exc:
+        read_forecast_file(p, build=False)
+    msg = str(exc.value)
+    assert "bad_case.toml" in msg, msg
+    assert key in msg, msg
+    assert reason in msg, msg
+
+
+def test_toml_syntax_error_names_file(tmp_path):
+    p = _write(tmp_path, BASE.replace('distance = "5 pc"', "distance = "), name="broken.toml")
+    with pytest.raises(ScenarioError, match="broken.toml.*not valid TOML"):
+        read_forecast_file(p)
+
+
+def test_missing_file_is_named(tmp_path):
+    with pytest.raises(ScenarioError, match="nowhere.toml: file not found"):
+        read_forecast_file(tmp_path / "nowhere.toml")
+
+
+def test_mass_above_removable_names_cme_mass(tmp_path):
+    # building the scenario checks the mass against the emission measure near the source temperature
+    p = _write(tmp_path, BASE.replace('mass = "1e16 g"', 'mass = "1e22 g"'), name="heavy.toml")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        with pytest.raises(ScenarioError) as exc:
+            read_forecast_file(p)
+    msg = str(exc.value)
+    assert "heavy.toml" in msg and "[cme] mass" in msg and "largest removable mass" in msg
