@@ -456,6 +456,21 @@ def _phase_scenario(ref, dem: DEM, star):
                            ref.observation, recovery=ref.recovery, upflow_fraction=ref.upflow_fraction)
 
 
+def _phase_observables(i, d, bdict, channels, dist, nh, table, abundances, density, x, flux, lum, rates,
+                       total_em, mean_logT):
+    """Fill row ``i`` of the flux, luminosity, count-rate, EM and mean-log T arrays for DEM ``d`` (in place)."""
+    from .synthesis import band_flux, luminosity
+
+    flux[i] = band_flux(d, bdict, dist, table=table, abundances=abundances, density=density).to_value(FLUX_UNIT)
+    lum[i] = luminosity(d, bdict, table=table, abundances=abundances, density=density).to_value(u.erg / u.s)
+    w = d.em_weights(x).to_value(u.cm ** -3)
+    total_em[i] = float(w.sum())
+    mean_logT[i] = float((w @ x) / w.sum()) if w.sum() > 0 else np.nan
+    for j, (_, ins, b) in enumerate(channels):
+        rates[i, j] = float(ins.count_rate(d, distance=dist, nh=nh, band=b, table=table, abundances=abundances,
+                                           density=density).to_value(u.ct / u.s))
+
+
 def compare_cycle(phases: Sequence[CyclePhase], star, *, bands=None, instruments=None, hardness=None,
                   conversion: CountConversion | None = None, reference=None, n_realisations: int = 1000,
                   seed: int = 0, minimum_mass: bool = False, abundances="coronal", density=None, table=None,
@@ -502,7 +517,7 @@ def compare_cycle(phases: Sequence[CyclePhase], star, *, bands=None, instruments
     from . import __version__
     from .dimming.scenario import Star
     from .emissivity import load_emissivity
-    from .synthesis import band_flux, luminosity, prepare
+    from .synthesis import prepare
 
     phases = list(phases)
     if len(phases) < 2:
@@ -549,7 +564,10 @@ def compare_cycle(phases: Sequence[CyclePhase], star, *, bands=None, instruments
     # DEMs of the phases
     dems = []
     for p in phases:
-        dems.append(p.resolve(dist, abundances=abundances, density=density, table=table))
+        try:
+            dems.append(p.resolve(dist, abundances=abundances, density=density, table=table))
+        except InputError as exc:
+            raise InputError(f"phase '{p.label}': {exc}") from None
     prep = prepare(table, abundances, density)
     n_p, n_b, n_c = len(phases), len(band_labels), len(channels)
 
@@ -561,14 +579,11 @@ def compare_cycle(phases: Sequence[CyclePhase], star, *, bands=None, instruments
     x = np.asarray(table.logT, dtype=float)
     bdict = {lab: band_q[lab] for lab in band_labels}
     for i, d in enumerate(dems):
-        flux[i] = band_flux(d, bdict, dist, table=table, abundances=abundances, density=density).to_value(FLUX_UNIT)
-        lum[i] = luminosity(d, bdict, table=table, abundances=abundances, density=density).to_value(u.erg / u.s)
-        w = d.em_weights(x).to_value(u.cm ** -3)
-        total_em[i] = float(w.sum())
-        mean_logT[i] = float((w @ x) / w.sum()) if w.sum() > 0 else np.nan
-        for j, (lab, ins, b) in enumerate(channels):
-            rates[i, j] = float(ins.count_rate(d, distance=dist, nh=nh, band=b, table=table, abundances=abundances,
-                                               density=density).to_value(u.ct / u.s))
+        try:
+            _phase_observables(i, d, bdict, channels, dist, nh, table, abundances, density, x, flux, lum, rates,
+                               total_em, mean_logT)
+        except InputError as exc:
+            raise InputError(f"phase '{phases[i].label}': {exc}") from None
 
     data: dict = {
         "flux": (("phase", "band"), flux, {"units": FLUX_UNIT.to_string(),

@@ -55,7 +55,7 @@ class CycleInputs:
         """:func:`synthcorona.cycle.compare_cycle` with these inputs (``n_realisations`` overrides the file)."""
         from .cycle import compare_cycle
 
-        ds = compare_cycle(self.phases, self.star, bands=self.bands, instruments=self.instruments or None,
+        ds = _wrap(self.source, compare_cycle,self.phases, self.star, bands=self.bands, instruments=self.instruments or None,
                            hardness=self.hardness, conversion=self.conversion, reference=self.reference,
                            n_realisations=n_realisations or self.n_realisations, seed=self.seed,
                            minimum_mass=self.minimum_mass, abundances=self.abundances, density=self.density,

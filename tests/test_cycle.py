@@ -7,7 +7,7 @@ import pytest
 from scipy.special import k0e
 
 from synthcorona.config import ScenarioError
-from synthcorona.cycle import CountConversion, CyclePhase, compare_cycle, convert_count_rate, cycle_tables
+from synthcorona.cycle import CyclePhase, compare_cycle, convert_count_rate, cycle_tables
 from synthcorona.cycle_file import read_cycle_file
 from synthcorona.dem import GaussianDEM, IsothermalDEM
 from synthcorona.dimming import Star
@@ -205,6 +205,16 @@ def test_malformed_cycle_files_name_the_key(tmp_path, capsys, change, key):
     assert main(["cycle", str(f), "--out", str(tmp_path / "o"), "--no-figures"]) == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and key in err and "bad.toml" in err and "Traceback" not in err
+
+
+def test_phase_outside_the_table_names_file_and_phase(tmp_path, capsys):
+    from synthcorona.cli import main
+
+    f = tmp_path / "hot.toml"
+    f.write_text(_MINIMAL.replace('temperature = "3 MK"', 'temperature = "5e8 K"'))
+    assert main(["cycle", str(f), "--out", str(tmp_path / "o"), "--no-figures"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "hot.toml" in err and "phase 'b'" in err and "temperature" in err
 
 
 def test_minimal_cycle_file_runs_without_instruments():
