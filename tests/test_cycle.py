@@ -80,6 +80,29 @@ def test_hardness_and_amplitude_equal_direct_computation():
     assert compare_cycle(iso, star, bands={"b": band})["flux_amplitude"].values[0] == pytest.approx(3.5, rel=1e-9)
 
 
+def test_minimum_detectable_mass_per_phase_is_consistent_with_detection_probability():
+    from synthcorona.cycle import _phase_scenario
+    from synthcorona.dimming import CME, Corona, DimmingScenario, Observation
+
+    star = Star(distance=3 * u.pc, nh=NH)
+    ref = DimmingScenario(star, Corona(GaussianDEM(6.3, 0.2, 1e51 * u.cm ** -3), density=DENSITY),
+                          CME(1e17 * u.g, source_temperature=2 * u.MK), None, "sc-euv193",
+                          Observation(12 * u.h, 120 * u.s, 3 * u.h))
+    phases = [CyclePhase("quiet", 0.0, dem=GaussianDEM(6.2, 0.2, 6e50 * u.cm ** -3)),
+              CyclePhase("active", 0.5, dem=GaussianDEM(6.4, 0.15, 2.5e51 * u.cm ** -3))]
+    ds = compare_cycle(phases, star, reference=ref, n_realisations=1000, seed=3, minimum_mass=True, density=DENSITY)
+    p = ds["detection_probability"].values[:, 0]
+    m = ds["minimum_detectable_mass"].values
+    assert list(ds["dimming_note"].values) == ["", ""]
+    # P(detect) of the 1e17 g reference CME above 0.5 <=> the mass detected with P = 0.5 is below 1e17 g.
+    for k in range(2):
+        assert (p[k] > 0.5) == (m[k] < 1e17), (p[k], m[k])
+    assert m[1] > m[0]   # brighter corona: a fixed decrement has S/N ~ 1/sqrt(quiescent rate) (Poisson counting)
+    direct = _phase_scenario(ref, phases[1].resolve(star.distance), star).minimum_detectable_mass(
+        n_realisations=1000, seed=3)
+    assert m[1] == pytest.approx(float(direct["mass"].values), rel=1e-12)
+
+
 def _born_band(band_kev, temperature_k):
     """Photon count of thermal free-free emission in a band, up to a T-independent constant.
 
