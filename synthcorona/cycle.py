@@ -38,6 +38,7 @@ into astropy tables (ECSV/CSV), :mod:`synthcorona.cycle_plotting` into figures.
 from __future__ import annotations
 
 import dataclasses
+import math
 from dataclasses import dataclass
 from typing import Any, NamedTuple, Sequence
 
@@ -539,6 +540,15 @@ def compare_cycle(phases: Sequence[CyclePhase], star, *, bands=None, instruments
     n_real = int(n_realisations)
     if n_real < 1:
         raise InputError(f"n_realisations={n_realisations} must be >= 1")
+    ref = None
+    if reference is not None:
+        ref = _reference_scenario(reference)
+        fa = float(ref.observation.false_alarm)
+        need = math.ceil(10 / fa - 1e-9)   # the threshold calibration needs >= 10 expected false alarms
+        if n_real < need:
+            raise InputError(f"n_realisations={n_real}: with the reference scenario's false_alarm={fa:g} the "
+                             f"detection threshold needs at least 10 expected false alarms; valid range "
+                             f">= {need}")
     if period is not None:
         as_scalar("period", period, u.yr, lo=0.0, unit_label="yr", inclusive=False)
         if not in_years:
@@ -684,7 +694,7 @@ def compare_cycle(phases: Sequence[CyclePhase], star, *, bands=None, instruments
                                            "(synthcorona.instruments.observables.counts_to_flux)"})
 
     if reference is not None:
-        _dimming(data, coords, attrs, _reference_scenario(reference), dems, phases, star, n_real, seed, minimum_mass)
+        _dimming(data, coords, attrs, ref, dems, phases, star, n_real, seed, minimum_mass)
 
     return xr.Dataset(data, coords=coords, attrs=attrs)
 

@@ -224,6 +224,11 @@ def read_cycle_file(path_or_text, *, name: str | None = None) -> CycleInputs:
         n_real = d.number("realisations", default=n_real, integer=True, lo=1, hi=10_000_000)
         seed = d.number("seed", default=seed, integer=True, lo=0)
         min_mass = d.boolean("minimum_mass", default=False)
+        fa = float(reference.observation.false_alarm)
+        if n_real * fa < 10 - 1e-9 and d.has("realisations"):
+            raise d.error("realisations", f"too few for the reference scenario's false_alarm={fa:g}: the detection "
+                                          f"threshold needs >= 10 expected false alarms; valid range "
+                                          f">= {int(round(10 / fa + 0.4999))}")
         d.finish()
     root.finish()
     return CycleInputs(title=title, star=star, star_name=star_name, phases=phases, bands=bands,

@@ -13,6 +13,7 @@ from synthcorona.dem import GaussianDEM, IsothermalDEM
 from synthcorona.dimming import Star
 from synthcorona.instruments import Instrument, load_generic
 from synthcorona.synthesis import band_flux
+from synthcorona.validation import InputError
 
 EXAMPLE = pathlib.Path(__file__).parent.parent / "examples" / "cycle" / "corvan9_cycle.toml"
 FLUX = u.erg / u.s / u.cm ** 2
@@ -98,6 +99,8 @@ def test_minimum_detectable_mass_per_phase_is_consistent_with_detection_probabil
     for k in range(2):
         assert (p[k] > 0.5) == (m[k] < 1e17), (p[k], m[k])
     assert m[1] > m[0]   # brighter corona: a fixed decrement has S/N ~ 1/sqrt(quiescent rate) (Poisson counting)
+    with pytest.raises(InputError, match="n_realisations=500.*>= 1000"):
+        compare_cycle(phases, star, reference=ref, n_realisations=500, density=DENSITY)
     direct = _phase_scenario(ref, phases[1].resolve(star.distance), star).minimum_detectable_mass(
         n_realisations=1000, seed=3)
     assert m[1] == pytest.approx(float(direct["mass"].values), rel=1e-12)
