@@ -19,6 +19,16 @@ import numpy as np
 
 __all__ = ["forecast_report", "ASSUMPTIONS"]
 
+_WINDOW_TEXT = (
+    "Detection: the window test compares counts before the CME with counts in [onset, onset + recovery time] "
+    "(exact conditional binomial test, Przyborowski & Wilenski 1940, Biometrika 31, 313); thresholds are calibrated "
+    "on simulations without the CME at the stated false-alarm probability. A flare that brightens the post-event "
+    "window can hide a dimming in such a before/after comparison (see the flare/dimming column).")
+_LIKELIHOOD_TEXT = (
+    "Detection: Poisson likelihood ratio (Cash 1979, ApJ 228, 939) of a dimming template against the baseline "
+    "light curve (flare included, assumed known); thresholds are calibrated on simulations without the CME at the "
+    "stated false-alarm probability. A flare whose shape is not known in advance would weaken this test.")
+
 #: Assumptions and limitations of the forecast (from synthcorona/dimming/scenario.py and docs/dimming.md).
 ASSUMPTIONS = [
     "Mass-loss dimming only: the CME removes Delta EM = n_e f_esc M / (mu_H m_H) from the corona (Harrison & Lyons "
@@ -36,10 +46,7 @@ ASSUMPTIONS = [
     "Noise is Poisson photon noise of source and constant background only: no stellar variability, no instrument "
     "systematics, pointing or calibration drifts. For very bright sources (the Sun at 1 AU) the photon-noise-limited "
     "detectable masses are far below what such systematics allow in practice.",
-    "Detection: the window test compares counts before the CME with counts in [onset, onset + recovery time] "
-    "(exact conditional binomial test, Przyborowski & Wilenski 1940); thresholds are calibrated on simulations "
-    "without the CME at the stated false-alarm probability. A flare that brightens the post-event window can hide a "
-    "dimming in such a before/after comparison (see the flare/dimming column).",
+    _WINDOW_TEXT,
     "The energy-flux depth uses the band's energy limits, not its effective area. The generic instruments "
     "(sc-...) are generic designs of synthcorona, not the calibration of any real instrument.",
     "At fixed corona the model gives depth proportional to mass; the empirical Sun-as-a-star relation of Mason et "
@@ -151,7 +158,8 @@ def _blocks(ds, inputs, figures):
         for name, (path, png, caption) in figures.items():
             b.append(("figure", (path, png, caption)))
     b.append(("h2", "Assumptions and limitations"))
-    b.append(("list", ASSUMPTIONS))
+    stat_text = _LIKELIHOOD_TEXT if ds.attrs.get("statistic") == "likelihood" else _WINDOW_TEXT
+    b.append(("list", [stat_text if a is _WINDOW_TEXT else a for a in ASSUMPTIONS]))
     b.append(("h2", "Atomic data and provenance"))
     b.append(("list", [
         f"Emissivities: CHIANTI {ds.attrs['chianti_version']} composite (ions whose v{ds.attrs['chianti_version']} "
