@@ -302,7 +302,7 @@ def _exists(path: str) -> bool:
 
 
 def _one_channel(name: str, spec):
-    ch = resolve_channels(spec if not isinstance(spec, list) else spec)
+    ch = resolve_channels(spec)
     if len(ch) != 1:
         raise InputError(f"{name}={spec!r} names {len(ch)} instrument bands ({', '.join(c[0] for c in ch)}); "
                          "name exactly one, e.g. 'sc-sxt:broad'")

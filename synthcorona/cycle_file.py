@@ -135,6 +135,21 @@ def _phases(root: Section) -> list:
     return out
 
 
+def _abs_spec(spec: str, file: str) -> str:
+    """An instrument-band spec with a relative response-file path made relative to the cycle file."""
+    from .instruments.designs import list_generic
+
+    name, sep, band = spec.rpartition(":")
+    if not (sep and name and band):
+        name, band = spec, None
+    if name in list_generic() or pathlib.Path(name).expanduser().is_absolute() or file in ("<string>", "<input>"):
+        return spec
+    p = pathlib.Path(file).parent / name
+    if not p.exists():
+        return spec
+    return str(p) + (f":{band}" if band is not None else "")
+
+
 def _report(root: Section):
     from .cycle import resolve_channels
 
@@ -149,7 +164,7 @@ def _report(root: Section):
             raise ScenarioError(f"{bsec.where()}: empty; give at least one band, e.g. soft = \"0.1-2.4 keV\"")
         bands = {k: bsec.band(k, required=True) for k in list(bsec.data)}
         bsec.finish()
-    instruments = r.strings("instruments", default=[])
+    instruments = [_abs_spec(x, root.file) for x in r.strings("instruments", default=[])]
     if instruments:
         _wrap(r.where("instruments"), resolve_channels, list(instruments))
     hardness = r.strings("hardness", default=None)
@@ -163,8 +178,8 @@ def _conversion(root: Section):
     c = root.section("conversion")
     if c is None:
         return None
-    src = c.string("from", required=True)
-    tgt = c.string("to", required=True)
+    src = _abs_spec(c.string("from", required=True), root.file)
+    tgt = _abs_spec(c.string("to", required=True), root.file)
     for key, spec in (("from", src), ("to", tgt)):
         ch = _wrap(c.where(key), resolve_channels, spec)
         if len(ch) != 1:

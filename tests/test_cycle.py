@@ -251,6 +251,22 @@ def test_minimal_cycle_file_runs_without_instruments():
     assert len(per) == 2 and len(amp) == 2
 
 
+def test_response_file_path_relative_to_cycle_file(tmp_path, monkeypatch):
+    from synthcorona.instruments import load_instrument, write_arf
+
+    e = np.geomspace(0.1, 10.0, 201)
+    write_arf(tmp_path / "flat.arf", e[:-1] * u.keV, e[1:] * u.keV, np.full(200, 10.0) * u.cm ** 2)
+    text = _MINIMAL + '\n[report]\ninstruments = ["flat.arf"]\n'
+    (tmp_path / "files").mkdir()
+    f = tmp_path / "c.toml"
+    f.write_text(text)
+    monkeypatch.chdir(tmp_path / "files")          # the path is relative to the cycle file, not the cwd
+    ds = read_cycle_file(f).run()
+    ins = load_instrument(str(tmp_path / "flat.arf"))
+    dem = IsothermalDEM(2 * u.MK, 1e50 * u.cm ** -3)
+    assert ds["count_rate"].values[0, 0] == pytest.approx(ins.count_rate(dem, distance=5 * u.pc).value[0], rel=1e-12)
+
+
 def test_list_command_runs(capsys):
     from synthcorona.cli import main
 
