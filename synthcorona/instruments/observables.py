@@ -39,7 +39,7 @@ import astropy.units as u
 import xarray as xr
 
 from ..abundances import resolve_abundances
-from ..absorption import ISM_ENERGY_MAX, ISM_ENERGY_MIN, NH_MAX, ism_transmission
+from ..absorption import ISM_ENERGY_MAX, ISM_ENERGY_MIN, NH_MAX, ism_cross_section, ism_transmission
 from ..synthesis import KEV_TO_ERG, _weights, band_kernel, luminosity, prepare
 from ..spectral import HC_KEV_ANGSTROM
 from ..validation import InputError, as_quantity, check_range
@@ -58,6 +58,7 @@ _FOUR_PI_PC2 = 4.0 * np.pi * _PC_CM**2
 _CACHE_SIZE = 16
 _MATRIX_CACHE: OrderedDict = OrderedDict()
 _LINE_ORDER_CACHE: dict = {}
+_LINE_SIGMA_CACHE: dict = {}
 
 
 # ----------------------------------------------------------------------------- argument helpers
@@ -132,6 +133,27 @@ def _line_layout(prep):
     return order, e_sorted
 
 
+def _line_cross_section(prep, ism_abundances) -> np.ndarray:
+    """ISM cross-section (cm^2 per H) at every line energy in ascending order (NaN outside the ISM model's
+    range); computed once per (prepared table, ISM abundances) and reused for any N_H and grid."""
+    ikey = ism_key(ism_abundances)
+    key = (id(prep), ikey)
+    hit = _LINE_SIGMA_CACHE.get(key)
+    if hit is not None and hit[0]() is prep:
+        return hit[1]
+    _, e_sorted = _line_layout(prep)
+    lo, hi = ism_range_kev()
+    sigma = np.full(e_sorted.shape, np.nan)
+    inside = (e_sorted >= lo) & (e_sorted <= hi)
+    if np.any(inside):
+        sigma[inside] = ism_cross_section(e_sorted[inside] * u.keV, ism_abundances).to_value(u.cm**2)
+    sigma.setflags(write=False)
+    if len(_LINE_SIGMA_CACHE) > _CACHE_SIZE:
+        _LINE_SIGMA_CACHE.clear()
+    _LINE_SIGMA_CACHE[key] = (weakref.ref(prep), sigma)
+    return sigma
+
+
 def binned_emissivity(edges_kev: np.ndarray, prep, photons: bool = True, nh: float | None = None,
                       ism_abundances="photospheric") -> np.ndarray:
     """Emissivity per unit EM in each bin of an energy grid, with interstellar absorption.
@@ -188,6 +210,7 @@ def binned_emissivity(edges_kev: np.ndarray, prep, photons: bool = True, nh: flo
     i1 = int(np.searchsorted(e_sorted, edges[-1], side="left"))   # bins are [lo, hi): a line at the top edge is out
     if i1 > i0:
         power = prep.line_power[order]        # a view when the table is sorted by wavelength
+        sigma_lines = _line_cross_section(prep, ism_abundances) if nh_eff else None
         chunk = 20000
         for c0 in range(i0, i1, chunk):       # loop over memory chunks of the line list, not over T or E
             c1 = min(c0 + chunk, i1)
@@ -195,7 +218,7 @@ def binned_emissivity(edges_kev: np.ndarray, prep, photons: bool = True, nh: flo
             vals = power[c0:c1]
             scale = 1.0 / (e_c * KEV_TO_ERG) if photons else np.ones(e_c.size)
             if nh_eff:
-                scale = scale * ism_transmission(e_c * u.keV, nh_eff * u.cm**-2, ism_abundances).value
+                scale = scale * np.exp(-sigma_lines[c0:c1] * nh_eff)     # ism_transmission, cached sigma
             vals = vals * scale[:, None]
             idx = np.searchsorted(edges, e_c, side="right") - 1
             starts = np.flatnonzero(np.concatenate([[True], np.diff(idx) > 0]))
