@@ -429,3 +429,30 @@ def test_bad_inputs_elsewhere():
         calibrate_threshold(lambda c: [0.0], CountSampler(np.ones(5) * CTS, 1 * u.s), 0.1, 200, seed=0)
     with pytest.raises(InputError, match="no dimming"):
         detection_probability(step_curve(), step_curve(), 1 * u.s, statistic="likelihood", n_realisations=2000)
+
+
+def test_window_sigma_keeps_precision_when_the_post_window_is_brighter():
+    # sigma = Phi^-1(1 - p), p = P(X <= N2); for p near 1 it is Phi^-1(P(X > N2)) (scipy.stats.binom.sf),
+    # which must stay finite where p itself rounds to 1 (e.g. a flare in the post-event window).
+    from synthcorona.dimming.statistics import _window_sigma
+
+    for n1, n2 in [(100, 500), (40, 60), (3, 30)]:
+        ref = stats.norm.ppf(stats.binom.sf(n2, n1 + n2, 0.5))   # scipy.stats, general reference
+        sig, _ = _window_sigma(np.array([n1]), np.array([n2]), 0.5)
+        assert np.isfinite(sig[0]) and sig[0] == pytest.approx(ref, rel=1e-9)
+
+
+def test_dimming_inside_a_flare_is_still_detectable():
+    # A 30 % dimming under a flare that triples the post-event rate: the flare-only null gives a finite
+    # threshold and the dimming is found nearly always (S/N of the step ~ 0.3*100*600/sqrt(3*100*600) >> 5,
+    # Gaussian limit of the window test; common practice, no source).
+    rate = np.full(240, 100.0)
+    flare = rate.copy()
+    flare[120:180] *= 3.0
+    with_cme = flare.copy()
+    with_cme[120:180] -= 30.0
+    ds = detection_probability(with_cme * u.ct / u.s, flare * u.ct / u.s, 10 * u.s, false_alarm=0.01,
+                               n_realisations=2000, statistic="window",
+                               windows=((0 * u.s, 1200 * u.s), (1200 * u.s, 1800 * u.s)), seed=3)
+    assert np.isfinite(float(ds["threshold"]))
+    assert float(ds["probability"]) > 0.99

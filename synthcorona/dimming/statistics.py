@@ -175,6 +175,9 @@ def _check_false_alarm(false_alarm, n: int) -> float:
 WINDOW_NORMAL_LIMIT = 1e7
 
 
+_LN2 = math.log(2.0)
+
+
 def _window_sigma(n_pre, n_post, q):
     """Significance (sigma) of the exact conditional test, no checks. ``q = t_post/(t_pre+t_post)``.
 
@@ -184,6 +187,9 @@ def _window_sigma(n_pre, n_post, q):
     Applications, vol. 1, 3rd ed., Wiley, ch. VII), evaluated in log space (``log_ndtr``) so that
     it neither overflows nor underflows. Its error in sigma is of order the skewness term
     |1 - 2q| z^2 / (6 sqrt(N q (1 - q))), < 1e-3 sigma for z < 10 and 0.01 <= q <= 0.99 at N > 1e7.
+    Where p > 1/2 sigma comes from the upper tail 1 - p (``bdtrc``); where a tail is below the
+    smallest double, from the signed likelihood root (see the code), so sigma stays finite and
+    monotone in N2 for N > 0.
     """
     n_pre = np.asarray(n_pre).astype(np.int64, copy=False)
     n_post = np.asarray(n_post).astype(np.int64, copy=False)
@@ -200,7 +206,26 @@ def _window_sigma(n_pre, n_post, q):
             z = (n_post + 0.5 - nb * q) / np.sqrt(nb * q * (1.0 - q))
             logp = np.where(big, special.log_ndtr(z), logp)
         logp = np.minimum(logp, 0.0)
-    return -special.ndtri_exp(logp), logp
+        sigma = -special.ndtri_exp(logp)
+        # Where p > 1/2 (post-event window brighter than expected, e.g. a flare) sigma is taken from the
+        # upper tail P(X > N2) = 1 - p, which keeps its precision where p rounds to 1 (sigma would be -inf).
+        upper = logp > -_LN2
+        if np.any(upper):
+            tail = special.bdtrc(small_k, small_n, q)
+            sigma = np.where(upper, special.ndtri(np.where(upper, tail, 0.5)), sigma)
+        # Tails below the smallest double (|sigma| > ~37): the signed root of the binomial deviance,
+        # r = sign(N q - N2) sqrt(2 [N2 ln(N2/Nq) + N1 ln(N1/N(1-q))]) (signed likelihood root;
+        # Barndorff-Nielsen & Cox 1994, Inference and Asymptotics, ch. 6), monotone in N2, so that
+        # thresholds calibrated deep in a tail (a flare filling the window) stay ordered.
+        lost = ~np.isfinite(sigma) & (n_tot > 0)
+        if np.any(lost):
+            nf = n_tot.astype(float)
+            dev = special.xlogy(n_post, n_post / (nf * q)) + special.xlogy(n_pre, n_pre / (nf * (1.0 - q)))
+            r = np.sign(nf * q - n_post) * np.sqrt(2.0 * np.maximum(dev, 0.0))
+            sigma = np.where(lost, r, sigma)
+            if np.any(big):
+                sigma = np.where(big & upper, -z, sigma)     # normal limit: Phi^-1(1 - Phi(z)) = -z
+    return sigma, logp
 
 
 def window_test(n_pre, t_pre, n_post, t_post) -> WindowTest:
@@ -210,7 +235,7 @@ def window_test(n_pre, t_pre, n_post, t_post) -> WindowTest:
     (Przyborowski & Wilenski 1940, Biometrika 31, 313); the p-value is
     :math:`P(X \le N_2)` -- the same as ``scipy.stats.binomtest(N2, N1 + N2, t2/(t1 + t2),
     alternative="less")`` -- and ``sigma`` its one-sided Gaussian equivalent
-    :math:`\Phi^{-1}(1 - p)` (``inf`` below p ~ 1e-308). Vectorised: all arguments broadcast.
+    :math:`\Phi^{-1}(1 - p)` (finite for any counts with N1 + N2 > 0; beyond |sigma| ~ 37 the signed likelihood root). Vectorised: all arguments broadcast.
 
     Parameters
     ----------
