@@ -6,9 +6,9 @@ Each module defines ``NAME`` (the subcommand), ``HELP`` (one line), ``add_argume
 COMMANDS = [
     "forecast",
     "spectrum",
-    "build_table",
-    "table_info",
-    "emission",
     "cycle",
     "list_items",
+    "emission",
+    "build_table",
+    "table_info",
 ]
