@@ -7,11 +7,19 @@ exposure and bin width (the :class:`Observation`), instrument, and CME mass -- a
 the Monte Carlo inside is vectorised over realisations). Every grid point uses the same ``seed``
 (common random numbers), so P(detect) is reproducible and, with the inversion sampler of
 :mod:`synthcorona.dimming.noise`, monotone along the mass axis.
+
+With ``scheduler=`` the outer grid points (all axes but mass, which shares one scenario) are
+evaluated as dask tasks, in chunks, on a local or remote cluster. A point's result depends
+only on the base scenario, the point's axis values and ``seed`` -- never on the worker, the
+chunk or the order in which points finish -- and results are placed by the point's index,
+so the grid is the same number for number whatever runs it (``docs/distributed.md``).
 """
 from __future__ import annotations
 
+import copy
 import dataclasses
 import itertools
+import math
 import warnings
 
 import numpy as np
@@ -48,10 +56,130 @@ def _instrument_label(x):
     raise InputError(f"instrument entry {x!r} must be an Instrument, a generic name or (instrument, band)")
 
 
+def _grid_point(recipe: dict, idx: tuple) -> dict:
+    """P(detect), its error and the depth (mass, band) -- and the minimum mass -- at one outer grid point.
+
+    ``recipe`` holds the base scenario's parts and the axes; ``idx`` the point's index on the
+    outer axes. The result depends on ``recipe`` and ``idx`` only (every point uses the same
+    ``seed``), so it is the same in whichever process and order the points are evaluated.
+    """
+    from .scenario import DimmingScenario
+
+    outer, mass_vals, bands = recipe["outer"], recipe["mass_vals"], recipe["bands_eval"]
+    vals = {n: recipe["outer_values"][n][i] for n, i in zip(outer, idx)}
+    star_kw, obs_kw = {}, {}
+    if "distance" in vals:
+        star_kw["distance"] = vals["distance"] * u.pc
+    if "nh" in vals:
+        star_kw["nh"] = vals["nh"] * u.cm ** -2
+    if "exposure" in vals:
+        obs_kw["exposure"] = vals["exposure"] * u.s
+    if "bin_width" in vals:
+        obs_kw["bin_width"] = vals["bin_width"] * u.s
+    star = dataclasses.replace(recipe["star"], **star_kw) if star_kw else recipe["star"]
+    obs = dataclasses.replace(recipe["observation"], **obs_kw) if obs_kw else recipe["observation"]
+    if "instrument" in vals:
+        inst = vals["instrument"]
+    else:
+        inst = {lab: (ins, b) for lab, ins, b in recipe["bands"]}
+    # the scenario's own mass must be removable at every point: build it with the smallest mass
+    cme = dataclasses.replace(recipe["cme"], mass=float(mass_vals.min()) * u.g)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        sc = DimmingScenario(star, recipe["corona"], cme, recipe["flare"], inst, obs, recovery=recipe["recovery"],
+                             upflow_fraction=recipe["upflow_fraction"])
+    if bands is None and len(sc.labels) != 1:
+        raise InputError(f"instrument entry {inst!r} gives bands {sc.labels}; on the instrument axis give "
+                         "(instrument, band) so that each entry has one band")
+    nb = 1 if bands is None else len(bands)
+    prob = np.full((mass_vals.size, nb), np.nan)
+    perr = np.full_like(prob, np.nan)
+    depth = np.full_like(prob, np.nan)
+    seed, statistic, n_real = recipe["seed"], recipe["statistic"], recipe["n_realisations"]
+    for k, m in enumerate(mass_vals):
+        blist = [None] if bands is None else bands
+        for j, b in enumerate(blist):
+            ds = sc.detection_probability(n_real, statistic=statistic, seed=seed,
+                                          band=b if b is not None else sc.labels[0], mass=m * u.g)
+            prob[k, j] = float(ds["probability"].values[0])
+            perr[k, j] = float(ds["probability_error"].values[0])
+            bi = sc.labels.index(b if b is not None else sc.labels[0])
+            depth[k, j] = float(sc.depths_for(m)[bi])
+    out = {"idx": tuple(idx), "prob": prob, "perr": perr, "depth": depth,
+           "mmin": np.nan, "mmin_err": np.nan, "mmin_band": "", "note": ""}
+    if recipe["min_mass"]:
+        try:
+            res = sc.minimum_detectable_mass(recipe["target_probability"], bracket=recipe["bracket"],
+                                             band=recipe["band"], statistic=statistic, n_realisations=n_real,
+                                             seed=seed)
+            out.update(mmin=float(res["mass"]), mmin_err=float(res["mass_error"]), mmin_band=res.attrs["band"])
+        except InputError as exc:
+            out["note"] = f"{dict(zip(outer, [str(v) for v in vals.values()]))}: {exc}"
+    return out
+
+
+class _Recipe:
+    """Holder of a grid recipe sent to the workers as one pickled object (dask would otherwise
+    serialise the dict's values one by one and strip the units of Quantity values)."""
+
+    def __init__(self, recipe: dict):
+        self.recipe = recipe
+
+
+def _grid_chunk(holder: _Recipe, idxs: list) -> list:
+    """:func:`_grid_point` for a chunk of outer grid points (one dask task)."""
+    return [_grid_point(holder.recipe, idx) for idx in idxs]
+
+
+def _portable(x):
+    """A copy of an instrument entry that can be sent to worker processes (response caches left behind)."""
+    from collections import OrderedDict
+
+    from ..instruments.response import Instrument
+
+    if isinstance(x, Instrument):
+        c = copy.copy(x)
+        c._cache, c._kcache = OrderedDict(), OrderedDict()
+        return c
+    if isinstance(x, tuple):
+        return tuple(_portable(v) for v in x)
+    return x
+
+
+def _grid_distributed(recipe: dict, points: list, scheduler, n_workers, chunk_size, progress: bool):
+    """Evaluate the grid points as dask tasks of ``chunk_size`` points; yields point results as they finish.
+
+    The recipe (the base scenario's parts, instruments without their caches) is sent to the
+    workers once (``Client.scatter``, broadcast); the default chunk size gives about four
+    chunks per worker.
+    """
+    from distributed import as_completed
+    from tqdm.auto import tqdm
+
+    from ..cluster import dask_client, n_workers_of
+
+    recipe = dict(recipe)
+    recipe["bands"] = [(lab, _portable(ins), b) for lab, ins, b in recipe["bands"]]
+    if "instrument" in recipe["outer_values"]:
+        recipe["outer_values"] = dict(recipe["outer_values"])
+        recipe["outer_values"]["instrument"] = [_portable(x) for x in recipe["outer_values"]["instrument"]]
+    with dask_client(scheduler, n_workers=n_workers) as client:
+        size = chunk_size or max(1, math.ceil(len(points) / (4 * n_workers_of(client))))
+        chunks = [points[i:i + size] for i in range(0, len(points), size)]
+        remote = client.scatter(_Recipe(recipe), broadcast=True, hash=False)
+        futs = client.map(_grid_chunk, [remote] * len(chunks), chunks, pure=False)
+        with tqdm(total=len(points), disable=not progress, desc="detection grid") as bar:
+            for fut in as_completed(futs):
+                part = fut.result()
+                fut.release()
+                bar.update(len(part))
+                yield from part
+
+
 def detection_grid(base_scenario, distance=None, nh=None, exposure=None, bin_width=None, mass=None, instrument=None,
                    n_realisations: int = 2000, seed=0, statistic: str = "window", band=None, min_mass: bool = False,
-                   target_probability: float = 0.5, bracket=(1e13 * u.g, 1e18 * u.g), progress: bool = False
-                   ) -> xr.Dataset:
+                   target_probability: float = 0.5, bracket=(1e13 * u.g, 1e18 * u.g), progress: bool = False,
+                   scheduler=None, n_workers: int | None = None, chunk_size: int | None = None) -> xr.Dataset:
     """P(detect) over the outer product of the given parameter axes.
 
     Parameters
@@ -76,6 +204,16 @@ def detection_grid(base_scenario, distance=None, nh=None, exposure=None, bin_wid
         (``attrs["min_mass_notes"]`` says where).
     progress : bool
         Show a tqdm progress bar.
+    scheduler : None, "local", address or distributed.Client
+        None (default): evaluate the grid points one after another in this process. Otherwise the
+        points run as dask tasks in chunks (see :mod:`synthcorona.cluster`): ``"local"`` starts a
+        local cluster of ``n_workers`` processes (default: one per CPU core) for this call, an
+        address (``"tcp://host:8786"``) or a ``Client`` uses a running cluster. The numbers do not
+        depend on this choice, the number of workers or ``chunk_size``.
+    n_workers : int, optional
+        Worker processes of a ``"local"`` cluster.
+    chunk_size : int, optional
+        Outer grid points per task (default: about four tasks per worker).
 
     Returns
     -------
@@ -127,51 +265,25 @@ def detection_grid(base_scenario, distance=None, nh=None, exposure=None, bin_wid
     notes = []
 
     points = list(itertools.product(*[range(s) for s in shape_outer]))
-    for idx in tqdm(points, disable=not progress, desc="detection grid"):
-        vals = {n: outer_values(n)[i] for n, i in zip(outer, idx)}
-        star_kw, obs_kw = {}, {}
-        if "distance" in vals:
-            star_kw["distance"] = vals["distance"] * u.pc
-        if "nh" in vals:
-            star_kw["nh"] = vals["nh"] * u.cm ** -2
-        if "exposure" in vals:
-            obs_kw["exposure"] = vals["exposure"] * u.s
-        if "bin_width" in vals:
-            obs_kw["bin_width"] = vals["bin_width"] * u.s
-        star = dataclasses.replace(base.star, **star_kw) if star_kw else base.star
-        obs = dataclasses.replace(base.observation, **obs_kw) if obs_kw else base.observation
-        if "instrument" in vals:
-            inst = vals["instrument"]
-        else:
-            inst = {lab: (ins, b) for lab, ins, b in base.bands}
-        # the scenario's own mass must be removable at every point: build it with the smallest mass
-        cme = dataclasses.replace(base.cme, mass=float(mass_vals.min()) * u.g)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            sc = DimmingScenario(star, base.corona, cme, base.flare, inst, obs, recovery=base.recovery,
-                                 upflow_fraction=base.upflow_fraction)
-        if bands is None and len(sc.labels) != 1:
-            raise InputError(f"instrument entry {inst!r} gives bands {sc.labels}; on the instrument axis give "
-                             "(instrument, band) so that each entry has one band")
-        for k, m in enumerate(mass_vals):
-            blist = [None] if bands is None else bands
-            for j, b in enumerate(blist):
-                ds = sc.detection_probability(n_realisations, statistic=statistic, seed=seed,
-                                              band=b if b is not None else sc.labels[0], mass=m * u.g)
-                prob[idx + (k, j)] = float(ds["probability"].values[0])
-                perr[idx + (k, j)] = float(ds["probability_error"].values[0])
-                bi = sc.labels.index(b if b is not None else sc.labels[0])
-                depth[idx + (k, j)] = float(sc.depths_for(m)[bi])
+    recipe = {"star": base.star, "corona": base.corona, "cme": base.cme, "flare": base.flare,
+              "observation": base.observation, "recovery": base.recovery, "upflow_fraction": base.upflow_fraction,
+              "bands": [(lab, ins, b) for lab, ins, b in base.bands], "outer": outer,
+              "outer_values": {n: outer_values(n) for n in outer}, "mass_vals": mass_vals, "bands_eval": bands,
+              "n_realisations": n_realisations, "statistic": statistic, "seed": seed, "min_mass": bool(min_mass),
+              "target_probability": target_probability, "bracket": bracket, "band": band}
+    if scheduler is None:
+        results = (_grid_point(recipe, idx) for idx in points)
+        results = tqdm(results, total=len(points), disable=not progress, desc="detection grid")
+    else:
+        results = _grid_distributed(recipe, points, scheduler, n_workers, chunk_size, progress)
+    for res in results:
+        idx = res["idx"]
+        prob[idx], perr[idx], depth[idx] = res["prob"], res["perr"], res["depth"]
         if min_mass:
-            try:
-                res = sc.minimum_detectable_mass(target_probability, bracket=bracket, band=band, statistic=statistic,
-                                                 n_realisations=n_realisations, seed=seed)
-                mmin[idx] = float(res["mass"])
-                mmin_err[idx] = float(res["mass_error"])
-                mmin_band[idx] = res.attrs["band"]
-            except InputError as exc:
-                notes.append(f"{dict(zip(outer, [str(v) for v in vals.values()]))}: {exc}")
-                mmin_band[idx] = ""
+            mmin[idx], mmin_err[idx], mmin_band[idx] = res["mmin"], res["mmin_err"], res["mmin_band"]
+            if res["note"]:
+                notes.append((idx, res["note"]))
+    notes = [n for _, n in sorted(notes)]   # grid order, whatever order the points finished in
 
     dims = list(outer) + ["mass"] + ([] if bands is None else ["band"])
     if bands is None:
