@@ -51,3 +51,26 @@ nitpicky = False
 
 html_theme = "alabaster"
 html_title = f"synthcorona {release}"
+
+
+# A Markdown page added to docs/ without an entry in a toctree of index.md would fail the
+# -W build ("document isn't included in any toctree"); list such pages under "More" instead.
+def _list_unlisted_pages(app, docname, source):
+    """Append a toctree of the top-level docs/*.md pages that index.md does not list."""
+    import pathlib
+    import re
+
+    if docname != "index":
+        return
+    listed = set(re.findall(r"^\s*([\w./-]+)\s*$", source[0], re.M))
+    here = pathlib.Path(app.srcdir)
+    extra = sorted(p.stem for p in here.glob("*.md") if p.stem != "index" and p.stem not in listed)
+    if extra:
+        source[0] += "\n\n```{toctree}\n:maxdepth: 1\n:caption: More\n\n" + "\n".join(extra) + "\n```\n"
+
+
+def setup(app):
+    """Sphinx hook: register the toctree completion above."""
+    app.connect("source-read", _list_unlisted_pages)
+    # re-read index.md on every build, so that pages added since the last build are listed
+    app.connect("env-get-outdated", lambda app, env, added, changed, removed: ["index"])
