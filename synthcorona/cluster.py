@@ -19,29 +19,35 @@ import os
 
 from .validation import InputError
 
-__all__ = ["SCHEDULER_ENV", "dask_client", "scheduler_from_env", "n_workers_of"]
+__all__ = ["SCHEDULER_ENV", "check_scheduler", "dask_client", "scheduler_from_env", "n_workers_of"]
 
 #: Environment variable naming the scheduler address for ``synthcorona build-table``.
 SCHEDULER_ENV = "SYNTHCORONA_SCHEDULER"
 
 
 def scheduler_from_env(scheduler=None):
-    """``scheduler`` if given, else the value of ``$SYNTHCORONA_SCHEDULER`` (None when unset or empty)."""
+    """``scheduler`` if given, else the value of ``$SYNTHCORONA_SCHEDULER`` (None when unset or empty),
+    checked with :func:`check_scheduler`."""
     if scheduler is not None:
+        check_scheduler(scheduler)
         return scheduler
-    return os.environ.get(SCHEDULER_ENV) or None
+    value = os.environ.get(SCHEDULER_ENV) or None
+    if value is not None:
+        check_scheduler(value, name=SCHEDULER_ENV)
+    return value
 
 
-def _check_scheduler(scheduler) -> None:
+def check_scheduler(scheduler, name: str = "scheduler") -> None:
+    """Raise :class:`InputError` unless ``scheduler`` is a Client, ``"local"`` or looks like an address."""
     from distributed import Client
 
     if isinstance(scheduler, Client):
         return
     if not isinstance(scheduler, str) or not scheduler.strip():
-        raise InputError(f"scheduler={scheduler!r} must be a distributed.Client, 'local' or a scheduler address "
+        raise InputError(f"{name}={scheduler!r} must be a distributed.Client, 'local' or a scheduler address "
                          "such as 'tcp://host:8786'")
     if scheduler != "local" and "://" not in scheduler and ":" not in scheduler:
-        raise InputError(f"scheduler={scheduler!r} is neither 'local' nor a scheduler address "
+        raise InputError(f"{name}={scheduler!r} is neither 'local' nor a scheduler address "
                          "('tcp://host:port' or 'host:port')")
 
 
@@ -58,7 +64,7 @@ def dask_client(scheduler, n_workers: int | None = None):
     """
     from distributed import Client, LocalCluster
 
-    _check_scheduler(scheduler)
+    check_scheduler(scheduler)
     if isinstance(scheduler, Client):
         yield scheduler
         return

@@ -17,8 +17,9 @@ Speed: the proton/electron density ratio (Young et al. 2003, ApJS 144, 135, eq. 
 which fiasco recomputes for every ion and is the slowest step of a plain
 contribution-function call, is computed once per temperature grid and handed to
 every ion. Each ion's result is written to its own file in a work directory, so
-an interrupted build resumes where it stopped, and ions run in parallel worker
-processes (``jobs``).
+an interrupted build resumes where it stopped, and ions run as parallel dask tasks
+(``dask.distributed``: a local cluster of ``jobs`` worker processes, or any cluster given by
+its scheduler address; see ``docs/distributed.md``).
 
 Line selection (documented threshold ``line_threshold`` = *f*): at every grid point
 (T, n_e), the weakest lines of an ion whose summed emissivity is below *f* times
@@ -39,13 +40,14 @@ import logging
 import os
 import pathlib
 import time
-from concurrent.futures import ProcessPoolExecutor, as_completed
+import uuid
 
 import numpy as np
 
 from ..validation import InputError
 from . import locate
 from ..tablefile import write_table
+from ..cluster import dask_client, scheduler_from_env
 
 __all__ = ["BuildSettings", "build_table", "default_elements", "DEFAULT_LOGT", "DEFAULT_LOG_DENSITY",
            "default_energy_grid"]
@@ -366,14 +368,86 @@ def compute_ion(ion_name: str, h5: str, logT: np.ndarray, log_density: np.ndarra
 
 
 def _run_one(args):
+    """One ion as a task: compute it and write ``path`` atomically (skipped when ``path`` exists).
+
+    The result goes to a uniquely named temporary file in the same directory first and is
+    then renamed onto ``path`` (``os.replace``, atomic on POSIX file systems), so a task killed
+    midway leaves no partial result and two attempts of one ion cannot mix their output.
+    Returns (ion name, compute seconds).
+    """
     name, h5, logT, logn, energy, pe, thr, path = args
+    path = pathlib.Path(path)
+    if path.exists():  # done by an earlier attempt or run: never recomputed
+        with np.load(path) as done:
+            return name, float(done["seconds"]) if "seconds" in done else float("nan")
+    if not pathlib.Path(h5).is_file():
+        raise FileNotFoundError(f"CHIANTI HDF5 file {h5} is not visible on this worker ({os.uname().nodename}); "
+                                "on a cluster it must be on storage shared by all workers (docs/distributed.md)")
     t0 = time.perf_counter()
     res = compute_ion(name, h5, logT, logn, energy, pe, thr)
     res["seconds"] = time.perf_counter() - t0
-    tmp = path.with_suffix(".partial.npz")
-    np.savez(tmp, **res)
-    os.replace(tmp, path)
+    tmp = path.with_name(f"{path.stem}.{os.getpid()}-{uuid.uuid4().hex[:8]}.partial.npz")
+    try:
+        np.savez(tmp, **res)
+        os.replace(tmp, path)
+    finally:
+        if tmp.exists():
+            tmp.unlink()
     return name, res["seconds"]
+
+
+def _run_serial(todo: list, bar) -> dict:
+    """Run the ion tasks one after another in this process; returns {ion: seconds}."""
+    timings = {}
+    for args in todo:
+        name, sec = _run_one(args)
+        timings[name] = sec
+        bar.update(1)
+    return timings
+
+
+def _run_dask(todo: list, bar, client, retries: int) -> dict:
+    """Run the ion tasks on a dask cluster; returns {ion: seconds}.
+
+    Each ion is one task (``retries`` re-runs after an exception in the task). A worker that
+    dies mid-ion loses only that ion: the scheduler re-assigns it, and if the scheduler gives
+    up on it (``KilledWorker``) it is submitted again, up to ``retries`` times.
+    """
+    from distributed import as_completed
+    from distributed.scheduler import KilledWorker
+
+    attempts = {}
+    by_future = {}
+
+    def submit(args):
+        name = args[0]
+        attempts[name] = attempts.get(name, 0) + 1
+        fut = client.submit(_run_one, args, key=f"synthcorona-ion-{name}-{uuid.uuid4().hex[:12]}", pure=False,
+                            retries=retries)
+        by_future[fut.key] = args
+        return fut
+
+    timings = {}
+    ac = as_completed([submit(a) for a in todo])
+    for fut in ac:
+        args = by_future.pop(fut.key)
+        try:
+            name, sec = fut.result()
+        except KilledWorker:
+            if attempts[args[0]] > retries:
+                raise
+            log.warning("ion %s: worker lost, resubmitting (attempt %d)", args[0], attempts[args[0]] + 1)
+            ac.add(submit(args))
+            continue
+        finally:
+            fut.release()
+        if not pathlib.Path(args[-1]).exists():
+            raise FileNotFoundError(
+                f"ion {name}: the worker wrote {args[-1]} but it is not visible here; the work directory must be "
+                "on storage shared by this machine and all workers (docs/distributed.md)")
+        timings[name] = sec
+        bar.update(1)
+    return timings
 
 
 def _ion_list(h5: pathlib.Path, elements: list[str]) -> list[str]:
@@ -397,6 +471,7 @@ def proton_electron_ratio(h5: pathlib.Path, logT: np.ndarray, work: pathlib.Path
     import fiasco
 
     fiasco.log.setLevel("ERROR")
+    _install_identity_cache()  # the same answers, without repeating plasmapy's element look-ups per ion
     ratio = fiasco.proton_electron_ratio(10 ** logT * u.K, hdf5_dbase_root=h5).value
     np.save(path, ratio)
     return ratio
@@ -411,8 +486,14 @@ def _substitution_note(sub: dict, ions: list[str]) -> str:
 
 
 def build_table(output, chianti=None, settings: BuildSettings | None = None, jobs: int = 1,
-                work_dir=None, progress: bool = True, **kwargs) -> pathlib.Path:
+                work_dir=None, progress: bool = True, scheduler=None, retries: int = 2,
+                **kwargs) -> pathlib.Path:
     """Build an emissivity table file from a CHIANTI database (resumable, parallel).
+
+    Each ion is one task; with ``jobs`` > 1 or a ``scheduler`` the tasks run as dask
+    (``dask.distributed``) tasks, else one after another in this process. The table is
+    assembled from the per-ion files in the order of the ion list, so it is the same, byte
+    for byte in its data and content hash, whichever way and in whatever order the ions ran.
 
     Parameters
     ----------
@@ -423,12 +504,20 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
     settings : BuildSettings, optional
         Grids, elements, line threshold (keyword arguments of BuildSettings are accepted directly).
     jobs : int
-        Number of worker processes (>= 1).
+        1: run in this process (unless ``scheduler`` or ``$SYNTHCORONA_SCHEDULER`` is set);
+        > 1: a local dask cluster of that many worker processes (one thread each); 0: one
+        worker per CPU core. Ignored for a remote scheduler.
     work_dir : path, optional
         Where per-ion results are kept (default: the user cache); rerunning with
-        the same settings resumes from them.
+        the same settings resumes from them. With a remote scheduler it must be a directory
+        that this machine and every worker see at the same path (shared file system).
     progress : bool
         Show a progress bar (ions done, time left).
+    scheduler : distributed.Client, "local" or address, optional
+        Where the ion tasks run (see :mod:`synthcorona.cluster`); default
+        ``$SYNTHCORONA_SCHEDULER``, else decided by ``jobs``.
+    retries : int
+        Times an ion is run again after its task failed or its worker died (>= 0).
     """
     import fiasco
     from tqdm import tqdm
@@ -438,8 +527,11 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
         settings = BuildSettings(**kwargs)
     elif kwargs:
         raise InputError(f"give either settings or keyword grids, not both: {sorted(kwargs)}")
-    if int(jobs) < 1:
-        raise InputError(f"jobs={jobs} is outside the valid range [1, {os.cpu_count()}]")
+    if int(jobs) < 0:
+        raise InputError(f"jobs={jobs} is outside the valid range [0, {os.cpu_count()}] (0: one per CPU core)")
+    if int(retries) < 0:
+        raise InputError(f"retries={retries} is outside the valid range [0, inf)")
+    scheduler = scheduler_from_env(scheduler)
     fiasco.log.setLevel("ERROR")
     src = locate.find_chianti(chianti)
     elements = settings.elements or default_elements(src.root)
@@ -459,20 +551,13 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
         else:
             todo.append((name, str(h5), settings.logT, settings.log_density, settings.energy, pe,
                          settings.two_ion_max_levels, path))
-    timings = {}
     bar = tqdm(total=len(ions), initial=done, unit="ion", desc="ions", disable=not progress)
-    if int(jobs) == 1:
-        for args in todo:
-            name, sec = _run_one(args)
-            timings[name] = sec
-            bar.update(1)
+    if (scheduler is None and int(jobs) == 1) or not todo:
+        timings = _run_serial(todo, bar)
     else:
-        with ProcessPoolExecutor(max_workers=int(jobs)) as pool:
-            futs = [pool.submit(_run_one, a) for a in todo]
-            for f in as_completed(futs):
-                name, sec = f.result()
-                timings[name] = sec
-                bar.update(1)
+        n_local = int(jobs) if int(jobs) > 0 else (os.cpu_count() or 1)
+        with dask_client(scheduler if scheduler is not None else "local", n_workers=n_local) as client:
+            timings = _run_dask(todo, bar, client, int(retries))
     bar.close()
     results = {}
     n_all = n_kept = 0
@@ -521,7 +606,7 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
                              f" and the two ions have <= {settings.two_ion_max_levels} levels together")
                           + "; single-ion model for: " + (" ".join(n for n in ions if not results[n]["two_ion"])
                                                           or "none")),
-        "build_seconds_per_ion": json.dumps({k: round(v, 2) for k, v in timings.items()}),
+        "build_seconds_per_ion": json.dumps({k: round(timings[k], 2) for k in ions if k in timings}),
         "ion_compute_seconds": json.dumps({k: round(v, 2) for k, v in ion_seconds.items()}),
         "build_wall_seconds_this_run": round(time.perf_counter() - t_start, 1),
     }

@@ -13,7 +13,15 @@ def add_arguments(p) -> None:
     """Options of ``synthcorona build-table``."""
     p.add_argument("--chianti", help="ASCII CHIANTI tree or .tar.xz (default: $SYNTHCORONA_CHIANTI, then fiasco's)")
     p.add_argument("--output", "-o", required=True, help="netCDF file to write")
-    p.add_argument("--jobs", "-j", type=int, default=1, help="parallel worker processes (default 1)")
+    p.add_argument("--jobs", "-j", type=int, default=0,
+                   help="worker processes of the local dask cluster (default 0: one per CPU core; "
+                        "1: no cluster, run in this process)")
+    p.add_argument("--scheduler", default=None,
+                   help="dask scheduler address (tcp://host:port) to run the ions on a cluster; the work dir "
+                        "and the CHIANTI copy must then be on a file system shared with the workers "
+                        "(default: $SYNTHCORONA_SCHEDULER, else the local cluster of --jobs)")
+    p.add_argument("--retries", type=int, default=2,
+                   help="times an ion is rerun after its task failed or its worker died (default 2)")
     p.add_argument("--work-dir", help="directory for per-ion results (resumable; default: user cache)")
     p.add_argument("--elements", nargs="+", help="element symbols (default: photospheric abundance >= 1e-7 of H)")
     p.add_argument("--logT-min", type=float, default=4.5, help="lowest log10 T [K] (default 4.5)")
@@ -37,7 +45,8 @@ def run(args) -> int:
                              energy=default_energy_grid(args.energy_points), elements=args.elements,
                              line_threshold=args.line_threshold, two_ion_max_levels=args.two_ion_max_levels)
     out = build_table(args.output, chianti=args.chianti, settings=settings, jobs=args.jobs,
-                      work_dir=args.work_dir, progress=not args.quiet)
+                      work_dir=args.work_dir, progress=not args.quiet, scheduler=args.scheduler,
+                      retries=args.retries)
     print(f"wrote {out}")
     return 0
 
