@@ -261,9 +261,15 @@ class SpectrumFiasco:
         sa, sb = a["spectrum"], b["spectrum"]
         sig = sb >= 0.01 * sb.max()
         rel = np.abs(sa[sig] / sb[sig] - 1)
+        # a line exactly on a bin edge lands in the bin below (synthesize) or above (np.histogram): for
+        # the bins off by > 2 %, compare the sums over them and their two neighbours
+        off = np.flatnonzero(sig)[rel > 0.02]
+        s3a, s3b = np.convolve(sa, np.ones(3), "same"), np.convolve(sb, np.ones(3), "same")
+        rel3 = np.abs(s3a[off] / s3b[off] - 1) if off.size else np.zeros(1)
         band = np.abs(a["bands"] / b["bands"] - 1)
-        return (f"same ions: {sig.sum()} bins >= 1% of peak agree to median {np.median(rel) * 100:.2f}%, "
-                f"max {rel.max() * 100:.1f}%; bands {', '.join(f'{x * 100:.2f}%' for x in band)}")
+        return (f"same ions: {sig.sum()} bins >= 1% of peak agree to median {np.median(rel) * 100:.2f}%; "
+                f"{off.size} bins off by > 2% (max {rel.max() * 100:.0f}%: a line on a bin edge), their 3-bin sums "
+                f"agree to {rel3.max() * 100:.2f}%; bands {', '.join(f'{x * 100:.2f}%' for x in band)}")
 
 
 @bench("synthesize", target=("time_max", 0.2),
