@@ -827,6 +827,7 @@ def run_one(name, quick):
     if "skipped" in ours or "error" in ours:
         row["met"] = None
         row["note"] = ours.get("skipped") or ours.get("error")
+        shutil.rmtree(out, ignore_errors=True)
         return row
     notes = [ours.get("note", "")]
     t_o = ours["seconds"]
@@ -851,6 +852,7 @@ def run_one(name, quick):
                   row["ratio"] is not None and row["ratio"] >= spec["target"][1] if kind == "speedup_min" else
                   t_o < spec["target"][1] if kind == "time_max" else rss_o < spec["target"][1])
     row["note"] = "; ".join(n for n in notes if n)
+    shutil.rmtree(out, ignore_errors=True)
     return row
 
 
