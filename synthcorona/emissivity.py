@@ -233,12 +233,20 @@ class EmissivityTable:
             a0 = np.empty((self.line_wavelength.size, t.size))
             a1 = np.empty_like(a0)
             for k, plane in planes.items():
-                a0[:, i == k] = plane[:, t[i == k]]
-                a1[:, i + 1 == k] = plane[:, t[i + 1 == k]]
-            with np.errstate(divide="ignore", invalid="ignore"):
-                out = np.where((a0 > 0) & (a1 > 0), a0 ** (1 - w) * a1 ** w,
-                               np.where(w == 0, a0, np.where(w == 1, a1, 0.0)))
-            self._cache[key] = np.where(finite, out, np.nan)
+                for a, m in ((a0, i == k), (a1, i + 1 == k)):
+                    if m.all():  # one density plane for every T (e.g. a constant density): plain copy
+                        a[...] = plane
+                    elif m.any():
+                        a[:, m] = plane[:, t[m]]
+            # geometric interpolation where both neighbours are > 0, evaluated only there (the
+            # powers dominate the cost and most lines are zero over much of the T grid)
+            out = np.where(w == 0, a0, np.where(w == 1, a1, 0.0))
+            r, c = np.nonzero((a0 > 0) & (a1 > 0))
+            wc = w[c]
+            out[r, c] = a0[r, c] ** (1 - wc) * a1[r, c] ** wc
+            if not finite.all():
+                out[:, ~finite] = np.nan
+            self._cache[key] = out
         return self._cache[key]
 
     def continuum(self, log_n: np.ndarray) -> np.ndarray:
