@@ -255,6 +255,9 @@ def test_min_mass_grid_on_cluster_identical_to_in_process(star, client):
     got = detection_grid(star, scheduler=client, chunk_size=1, **kw)
     xr.testing.assert_identical(ref, got)
     assert np.all(np.isfinite(got.minimum_detectable_mass.values))
+    # the same cluster reached by its scheduler address (as a remote cluster would be)
+    by_address = detection_grid(star, scheduler=client.scheduler.address, **kw)
+    xr.testing.assert_identical(ref, by_address)
 
 
 def test_detection_grid_bad_scheduler(star):
