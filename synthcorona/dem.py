@@ -412,6 +412,8 @@ class IsothermalDEM(DEM):
     total_em : Quantity (cm^-3 or cm^-5)
         Emission measure, finite and >= 0.
 
+    Notes
+    -----
     On a log T grid the EM goes to the two nodes around log10 T0 with weights
     linear in log T (``(1 - t, t)`` with ``t`` the fractional position in the
     cell), so a kernel is linearly interpolated in log T; a T0 within 1e-6 of
@@ -476,6 +478,8 @@ class GaussianDEM(_ContinuousDEM):
     total_em : Quantity (cm^-3 or cm^-5)
         Total EM over all T, finite and >= 0.
 
+    Notes
+    -----
     Weights use the normal CDF (closed form, exact for any width).
     """
 
@@ -571,6 +575,8 @@ class PowerLawDEM(_ContinuousDEM):
     min_temperature : Quantity (K), default 1e5 K
         Lower cut-off.
 
+    Notes
+    -----
     Normalisation and weights are closed-form integrals of exponentials in log T.
     """
 
@@ -829,6 +835,8 @@ class MultiComponentDEM(DEM):
         their batch shapes broadcast together. Nested multi-component DEMs are
         flattened.
 
+    Notes
+    -----
     ``total_em``, ``dem(T)`` and ``em_weights`` are sums over the components.
     """
 
@@ -873,7 +881,9 @@ class MultiComponentDEM(DEM):
         ems : Quantity (cm^-3 or cm^-5), shape (k, ...)
             EM of each component; trailing axes (if any) form the batch.
 
-        Example: ``from_temperatures([3e6, 1e7] * u.K, [1e51, 5e50] * u.cm**-3)``.
+        Examples
+        --------
+        ``from_temperatures([3e6, 1e7] * u.K, [1e51, 5e50] * u.cm**-3)``.
         """
         if isinstance(temperatures, (list, tuple)) and all(isinstance(v, u.Quantity) for v in temperatures):
             temperatures = u.Quantity(temperatures)  # list of scalar Quantities
