@@ -235,7 +235,7 @@ def window_test(n_pre, t_pre, n_post, t_post) -> WindowTest:
     (Przyborowski & Wilenski 1940, Biometrika 31, 313); the p-value is
     :math:`P(X \le N_2)` -- the same as ``scipy.stats.binomtest(N2, N1 + N2, t2/(t1 + t2),
     alternative="less")`` -- and ``sigma`` its one-sided Gaussian equivalent
-    :math:`\Phi^{-1}(1 - p)` (finite for any counts with N1 + N2 > 0; beyond |sigma| ~ 37 the signed likelihood root). Vectorised: all arguments broadcast.
+    :math:`\Phi^{-1}(1 - p)` (finite for any counts with N1 + N2 > 0; beyond ``|sigma|`` ~ 37 the signed likelihood root). Vectorised: all arguments broadcast.
 
     Parameters
     ----------
@@ -919,8 +919,9 @@ def minimum_detectable(param_to_expected: Callable, bin_width, *, bracket, targe
         e.g. 0.5 or 0.9.
     xtol : float
         Tolerance on ln(param) (default 1e-3, i.e. 0.1 %).
-    Other parameters as in :func:`detection_probability`; ``seed=None`` draws one fresh seed
-    used for all evaluations.
+    false_alarm, n_realisations, statistic, windows, seed, background, red_noise, start_time
+        As in :func:`detection_probability` (and ``fit_scale``, ``chunk_size``, ``memory_budget``);
+        ``seed=None`` draws one fresh seed used for all evaluations.
 
     Returns
     -------
