@@ -217,10 +217,11 @@ def detection_grid(base_scenario, distance=None, nh=None, exposure=None, bin_wid
 
     Returns
     -------
-    xarray.Dataset with ``probability`` and ``probability_error`` over the axis dims (+ ``band``
-    without an instrument axis), ``depth`` (fractional count-rate depth at each point), and with
-    ``min_mass=True`` ``minimum_detectable_mass`` and ``minimum_detectable_mass_error`` [g] over
-    the non-mass dims. Coordinates carry units attrs.
+    xarray.Dataset
+        With ``probability`` and ``probability_error`` over the axis dims (+ ``band``
+        without an instrument axis), ``depth`` (fractional count-rate depth at each point), and with
+        ``min_mass=True`` ``minimum_detectable_mass`` and ``minimum_detectable_mass_error`` [g] over
+        the non-mass dims. Coordinates carry units attrs.
     """
     from tqdm.auto import tqdm
 
