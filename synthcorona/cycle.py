@@ -511,9 +511,10 @@ def compare_cycle(phases: Sequence[CyclePhase], star, *, bands=None, instruments
 
     Returns
     -------
-    xarray.Dataset with dims ``phase``, ``band``, ``channel`` (instrument bands), ``pair`` (hardness
-    pairs) and ``dimming_band``; units in each variable's attrs; provenance (table CHIANTI version
-    and content hash, abundances, star, method) in ``attrs``.
+    xarray.Dataset
+        With dims ``phase``, ``band``, ``channel`` (instrument bands), ``pair`` (hardness
+        pairs) and ``dimming_band``; units in each variable's attrs; provenance (table CHIANTI version
+        and content hash, abundances, star, method) in ``attrs``.
     """
     from . import __version__
     from .dimming.scenario import Star
