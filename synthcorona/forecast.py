@@ -106,8 +106,9 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
 
     Returns
     -------
-    xarray.Dataset over ``band``, ``mass`` (the mass grid, g), ``time`` (bin centres, s),
-    ``realisation`` and ``logT``; see the variables' ``long_name`` and ``units`` attrs.
+    xarray.Dataset
+        Over ``band``, ``mass`` (the mass grid, g), ``time`` (bin centres, s),
+        ``realisation`` and ``logT``; see the variables' ``long_name`` and ``units`` attrs.
     """
     sc = inputs.scenario
     if sc is None:
