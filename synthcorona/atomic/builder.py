@@ -28,8 +28,10 @@ is not a candidate at *some* grid point. Hence at every grid point the dropped
 lines of every ion carry less than *f* of that ion's line emission, and for any
 abundances the dropped lines carry less than *f* of the total line emission of the
 plasma; in any wavelength window holding at least a fraction *w* of the total line
-emission they carry less than *f*/*w* of the window's emission (1 % for the default
-*f* = 1e-5 and windows with w >= 1e-3).
+emission they carry less than *f*/*w* of the window's emission. With the default
+*f* = 1e-3 that bound alone is loose, so :func:`select_lines_windowed` also restores lines
+until the dropped lines carry < 0.5 % of every 10 Angstrom window that holds >= 1 % of the
+ion's emission.
 """
 from __future__ import annotations
 
