@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 
 __all__ = ["main", "build_parser"]
@@ -38,13 +39,27 @@ def main(argv=None) -> int:
     from .commands._common import CliError
     from .validation import InputError
 
+    from .emissivity import TABLE_ENV
+
     args = build_parser().parse_args(argv)
+    table = getattr(args, "emissivity_table", None)
+    saved = os.environ.get(TABLE_ENV)
     try:
+        if table is not None:
+            if not os.path.isfile(table):
+                raise CliError(f"--table {table}: no such emissivity table file")
+            os.environ[TABLE_ENV] = os.path.abspath(table)   # every part of the run (and its workers) uses it
         return int(args.func(args) or 0)
     except (CliError, InputError, u.UnitsError) as exc:
         msg = " ".join(str(exc).split())
         print(f"synthcorona {args.command}: error: {msg}", file=sys.stderr)
         return 2
+    finally:
+        if table is not None:
+            if saved is None:
+                os.environ.pop(TABLE_ENV, None)
+            else:
+                os.environ[TABLE_ENV] = saved
 
 
 if __name__ == "__main__":

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import functools
 import importlib.resources
+import os
 import pathlib
 
 import numpy as np
@@ -19,9 +20,12 @@ import astropy.units as u
 from .tablefile import TableFileError, read_table
 from .validation import InputError, as_quantity, check_finite
 
-__all__ = ["EmissivityTable", "load_emissivity", "DEFAULT_TABLE_NAME"]
+__all__ = ["EmissivityTable", "load_emissivity", "DEFAULT_TABLE_NAME", "TABLE_ENV"]
 
 DEFAULT_TABLE_NAME = "emissivity_default.nc"
+#: Environment variable naming a table file that replaces the embedded one wherever no table is passed
+#: (the forecast, spectrum and cycle subcommands set it from their ``--table`` option).
+TABLE_ENV = "SYNTHCORONA_TABLE"
 _GRID_TOL = 1e-9
 
 
@@ -285,16 +289,20 @@ def load_emissivity(path=None) -> EmissivityTable:
     ----------
     path : str or pathlib.Path, optional
         A table built with ``synthcorona build-table`` (e.g. from a full CHIANTI
-        install). Default: the table embedded in the package (CHIANTI 10.1 composite;
-        see its ``provenance`` and the README).
+        install). Default: the file named by the environment variable ``SYNTHCORONA_TABLE``
+        if set, else the table embedded in the package (CHIANTI 10.1 composite; see its
+        ``provenance`` and the README).
 
     Raises
     ------
     TableFileError
         Missing, corrupted or foreign file, or a table without CHIANTI provenance.
     """
-    p = pathlib.Path(path) if path is not None else _default_path()
+    env = os.environ.get(TABLE_ENV, "").strip() if path is None else ""
+    p = pathlib.Path(path) if path is not None else (pathlib.Path(env).expanduser() if env else _default_path())
     if not p.is_file():
+        if env:
+            raise TableFileError(f"{TABLE_ENV}={env}: no such emissivity table file")
         if path is None:
             raise TableFileError(f"the embedded emissivity table {p} is missing from this installation; "
                                  "reinstall synthcorona or build one with 'synthcorona build-table'")

@@ -1,4 +1,6 @@
 """The command line, end to end, against the Python API."""
+import pathlib
+
 import numpy as np
 import astropy.units as u
 import pytest
@@ -33,3 +35,27 @@ def test_emission_bad_input_exits_2_with_one_line(tmp_path, capsys, args, text):
     assert rc == 2
     err = capsys.readouterr().err.strip()
     assert text in err and "\n" not in err and "Traceback" not in err
+
+
+def test_table_option_and_environment_select_the_emissivity_table(tmp_path, monkeypatch, capsys):
+    import shutil
+
+    from synthcorona.emissivity import TABLE_ENV, load_emissivity
+
+    embedded = load_emissivity()
+    copy = tmp_path / "my_table.nc"
+    shutil.copyfile(embedded.path, copy)
+    monkeypatch.setenv(TABLE_ENV, str(copy))
+    assert load_emissivity().path.resolve() == copy.resolve()
+    monkeypatch.setenv(TABLE_ENV, str(tmp_path / "absent.nc"))
+    with pytest.raises(Exception, match="SYNTHCORONA_TABLE=.*absent.nc: no such emissivity table file"):
+        load_emissivity()
+    monkeypatch.delenv(TABLE_ENV)
+    scen = str(pathlib.Path(__file__).parent.parent / "examples" / "scenarios" / "sun_as_a_star_euv.toml")
+    rc = main(["spectrum", scen, "--table", str(tmp_path / "absent.nc"), "--out", str(tmp_path / "o")])
+    err = capsys.readouterr().err
+    assert rc == 2 and "--table" in err and "absent.nc" in err and "Traceback" not in err
+    assert main(["spectrum", scen, "--table", str(copy), "--out", str(tmp_path / "o"), "--no-figures"]) == 0
+    written = QTable.read(tmp_path / "o" / "band_fluxes.ecsv")
+    assert written.meta["table"] == str(copy.resolve())      # the run used the given table ...
+    assert TABLE_ENV not in __import__("os").environ           # ... and left the environment as it was

@@ -22,6 +22,9 @@ def add_arguments(p) -> None:
     """Options of ``synthcorona spectrum``."""
     p.add_argument("scenario", help="forecast scenario file (TOML; its [star], [corona], [[instrument]] are used)")
     p.add_argument("--out", default="spectrum_out", help="output folder (created if needed; default 'spectrum_out')")
+    p.add_argument("--table", dest="emissivity_table", metavar="FILE",
+                   help="emissivity table built with 'synthcorona build-table' (default: the embedded CHIANTI 10.1 "
+                        "composite table, or $SYNTHCORONA_TABLE)")
     p.add_argument("--no-figures", action="store_true", help="write no PNG figure")
 
 
