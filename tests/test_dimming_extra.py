@@ -258,3 +258,13 @@ def test_series_datetime_time_and_explicit_bands():
     assert np.all(ds.count_rate.values[0] <= ds.count_rate.values[1])   # a sub-band never exceeds the total
     with pytest.raises(InputError, match="single instrument"):
         lightcurve_from_em_series(da, BANDS, 1 * u.pc, bands="total")
+
+
+def test_source_density_outside_the_table_is_said_not_silent():
+    # The table holds log n_e 8-12 (docs/table_format.md); a 1e7 cm-3 source keeps its own density in
+    # Delta EM = n_e M / (mu_H m_H) but its emissivities come from the 1e8 plane, with a warning.
+    with pytest.warns(UserWarning, match=r"source density 1e\+07 cm-3 is outside the emissivity table"):
+        s = DimmingScenario(Star(1 * u.AU), Corona(SUN_DEM, density=1e7 * u.cm ** -3),
+                            CME(1e14 * u.g, source_temperature=1.5e6 * u.K), None, ["sc-euv171"],
+                            Observation(12 * u.h, 60 * u.s, 2 * u.h))
+    assert s.density == 1e7 and s.emissivity_density == pytest.approx(1e8)

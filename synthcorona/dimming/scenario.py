@@ -292,6 +292,12 @@ class DimmingScenario:
         self.density = n_src
         lo, hi = 10 ** table.log_density[0], 10 ** table.log_density[-1]
         self.emissivity_density = float(np.clip(n_src, lo, hi))
+        if self.emissivity_density != n_src:
+            # The mass -> EM conversion uses n_src itself; only the emissivities (weakly density-dependent
+            # through metastable levels) are taken at the nearest density the table holds. Said, not silent.
+            warnings.warn(f"CME source density {n_src:.3g} cm-3 is outside the emissivity table's density range "
+                          f"[{lo:.3g}, {hi:.3g}] cm-3; emissivities are taken at {self.emissivity_density:.3g} cm-3 "
+                          "(attrs 'emissivity_density_cm-3')", UserWarning, stacklevel=3)
         self.quiescent_weights = cor.dem.em_weights(self.logT).to_value(u.cm ** -3)
         self.removal_weights = mr.removal_weights(self.logT, self.quiescent_weights, distribution=cme.distribution,
                                                   source_temperature=t_src, window=cme.window, width=cme.width)
