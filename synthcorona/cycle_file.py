@@ -77,18 +77,6 @@ def _wrap(where: str, fn, *args, **kwargs):
         raise ScenarioError(f"{where}: {exc}") from None
 
 
-def _star(root: Section):
-    from .dimming.scenario import Star
-
-    s = root.section("star", required=True)
-    name = s.string("name", default=None)
-    dist = s.quantity("distance", u.pc, required=True, lo=0.0, lo_inclusive=False, hi=1e4)
-    nh = s.quantity("nh", u.cm ** -2, default=None, lo=0.0, hi=1e24)
-    radius = s.quantity("radius", u.R_sun, default=None, lo=0.0, lo_inclusive=False, hi=1e4)
-    s.finish()
-    return _wrap(s.where(), Star, distance=dist, nh=nh, radius=radius), name
-
-
 def _phase_value(p: Section):
     """``phase``: a plain number (cycle fraction in [0, 1)) or a time with a unit ("3 yr")."""
     v = p.raw("phase", required=True)
@@ -219,7 +207,9 @@ def read_cycle_file(path_or_text, *, name: str | None = None) -> CycleInputs:
     else:
         abundances = reference.corona.abundances
     density = root.quantity("density", u.cm ** -3, default=None, lo=1e6, hi=1e13)
-    star, star_name = _star(root)
+    from .scenario_file import read_star
+
+    star, star_name = read_star(root)
     phases = _phases(root)
     if period is not None and not isinstance(phases[0].phase, u.Quantity):
         raise root.error("period", "applies to phases given as times (\"3 yr\"); these phases are cycle fractions")

@@ -148,7 +148,10 @@ def _wrap(sec: Section, key: str | None, fn, *args, **kwargs):
         raise ScenarioError(f"{where}: {exc}") from None
 
 
-def _star(root: Section):
+def read_star(root: Section):
+    """The ``[star]`` table (distance, nh, radius, name) -> (:class:`~synthcorona.dimming.scenario.Star`, name).
+
+    Shared by forecast scenario files and activity-cycle files."""
     from .dimming.scenario import Star
 
     s = root.section("star", required=True)
@@ -456,7 +459,7 @@ def read_forecast_file(path_or_text, *, name: str | None = None, build: bool = T
     title = sc.string("title", default=pathlib.Path(root.file).stem if is_file else "CME-dimming forecast")
     description = sc.string("description", default="")
     sc.finish()
-    star, star_name = _star(root)
+    star, star_name = read_star(root)
     corona = _corona(root)
     cme, recovery, upflow = _cme(root)
     flare, flare_class = _flare(root)
