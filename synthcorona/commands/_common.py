@@ -1,7 +1,7 @@
 """Helpers shared by the subcommands: unit-string parsing and the user-mistake exception."""
 from __future__ import annotations
 
-__all__ = ["CliError", "parse_quantity", "parse_band"]
+__all__ = ["CliError", "parse_quantity", "parse_band", "add_table_option"]
 
 
 class CliError(Exception):
@@ -35,3 +35,11 @@ def parse_band(text: str, what: str = "--band"):
     if q.unit.physical_type not in ("energy", "length"):
         raise CliError(f"{what}: '{text}' must be in energy or wavelength units")
     return q
+
+
+def add_table_option(p) -> None:
+    """``--table FILE``: run the whole subcommand on a rebuilt emissivity table (``synthcorona.cli.main``
+    puts it in ``$SYNTHCORONA_TABLE`` for the duration of the run)."""
+    p.add_argument("--table", dest="emissivity_table", metavar="FILE",
+                   help="emissivity table built with 'synthcorona build-table' (default: the embedded CHIANTI 10.1 "
+                        "composite table, or $SYNTHCORONA_TABLE)")

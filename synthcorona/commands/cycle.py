@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import pathlib
 
-from ._common import CliError
+from ._common import CliError, add_table_option
 
 NAME = "cycle"
 HELP = "compare fluxes, count rates, hardness and dimming detectability across an activity cycle"
@@ -26,9 +26,7 @@ def add_arguments(p) -> None:
                                                              "docs/cycle_reference.md)")
     p.add_argument("--out", default="synthcorona_out", metavar="DIR",
                    help="output folder, created if needed (default 'synthcorona_out')")
-    p.add_argument("--table", dest="emissivity_table", metavar="FILE",
-                   help="emissivity table built with 'synthcorona build-table' (default: the embedded CHIANTI 10.1 "
-                        "composite table, or $SYNTHCORONA_TABLE)")
+    add_table_option(p)
     p.add_argument("--realisations", type=int, default=None, metavar="N",
                    help="Monte Carlo realisations per detection probability (a count, no unit; default: "
                         "[dimming] realisations of the file, else the reference scenario's, else 1000)")

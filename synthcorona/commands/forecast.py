@@ -11,7 +11,7 @@ from __future__ import annotations
 import io
 import pathlib
 
-from ._common import CliError
+from ._common import CliError, add_table_option
 
 NAME = "forecast"
 HELP = "CME-dimming forecast of a scenario file: depths, durations, P(detect), minimum detectable mass, report"
@@ -21,9 +21,7 @@ def add_arguments(p) -> None:
     """Options of ``synthcorona forecast``."""
     p.add_argument("scenario", help="forecast scenario file (TOML; every quantity a string with a unit)")
     p.add_argument("--out", default="forecast_out", help="output folder (created if needed; default 'forecast_out')")
-    p.add_argument("--table", dest="emissivity_table", metavar="FILE",
-                   help="emissivity table built with 'synthcorona build-table' (default: the embedded CHIANTI 10.1 "
-                        "composite table, or $SYNTHCORONA_TABLE)")
+    add_table_option(p)
     p.add_argument("--realisations", type=int, default=None,
                    help="Monte Carlo realisations per probability (a count, dimensionless; 100-1e6 and >= 10 / "
                         "false-alarm probability; default: the file's [montecarlo] realisations)")

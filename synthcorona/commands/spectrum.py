@@ -12,7 +12,7 @@ from __future__ import annotations
 import json
 import pathlib
 
-from ._common import CliError
+from ._common import CliError, add_table_option
 
 NAME = "spectrum"
 HELP = "spectrum, band fluxes, luminosities and instrument count rates of a scenario file's corona"
@@ -22,9 +22,7 @@ def add_arguments(p) -> None:
     """Options of ``synthcorona spectrum``."""
     p.add_argument("scenario", help="forecast scenario file (TOML; its [star], [corona], [[instrument]] are used)")
     p.add_argument("--out", default="spectrum_out", help="output folder (created if needed; default 'spectrum_out')")
-    p.add_argument("--table", dest="emissivity_table", metavar="FILE",
-                   help="emissivity table built with 'synthcorona build-table' (default: the embedded CHIANTI 10.1 "
-                        "composite table, or $SYNTHCORONA_TABLE)")
+    add_table_option(p)
     p.add_argument("--no-figures", action="store_true", help="write no PNG figure")
 
 
