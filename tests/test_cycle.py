@@ -1,4 +1,9 @@
-"""Activity-cycle comparison (synthcorona.cycle), cycle files, and the 'cycle' and 'list' subcommands."""
+"""Activity-cycle comparison (synthcorona.cycle), cycle files, and the 'cycle' and 'list' subcommands.
+
+References: exact algebraic identities (flux and count rate are linear in EM, so conversions must
+invert to rounding), direct calls of the already-tested band_flux / count_rate API, and thermal
+free-free emission (Rybicki & Lightman 1979, eq. 5.14b) for the temperature dependence of hardness.
+"""
 import pathlib
 
 import numpy as np

@@ -61,6 +61,7 @@ def _read(tmp_path, text, build=False):
 
 def test_values_and_units(tmp_path):
     fi = _read(tmp_path, BASE + '\n[output]\nreport = "html"\n')
+    # Expected values: the file's own unit strings, converted by astropy.units; 1 h = 3600 s (SI brochure).
     assert fi.star.distance.to_value(u.pc) == pytest.approx(5.0, rel=1e-12)
     assert fi.star.nh.to_value(u.cm ** -2) == pytest.approx(1e18, rel=1e-12)
     assert fi.corona.density.to_value(u.cm ** -3) == pytest.approx(2e9, rel=1e-12)
