@@ -205,41 +205,10 @@ class Observation:
 
 
 def _resolve_instruments(instrument):
-    """-> list of (label, Instrument, band name or None)."""
-    from ..instruments.designs import load_generic
-    from ..instruments.response import Instrument
+    """-> list of (label, Instrument, band name); see :func:`synthcorona.instruments.channels.resolve_channels`."""
+    from ..instruments.channels import resolve_channels
 
-    def inst_of(x):
-        if isinstance(x, Instrument):
-            return x
-        if isinstance(x, str):
-            return load_generic(x)
-        raise InputError(f"instrument entry {x!r} must be an Instrument or a generic instrument name")
-
-    if isinstance(instrument, (str, Instrument)):
-        items = [(None, instrument)]
-    elif isinstance(instrument, dict):
-        items = list(instrument.items())
-    elif isinstance(instrument, (list, tuple)):
-        items = [(None, x) for x in instrument]
-    else:
-        raise InputError(f"instrument={instrument!r}: give an Instrument, a name, a list or a dict label -> "
-                         "instrument or (instrument, band)")
-    out = []
-    for label, x in items:
-        band = None
-        if isinstance(x, tuple):
-            x, band = x
-        ins = inst_of(x)
-        bands = [band] if band is not None else (list(ins.bands) or ["total"])
-        for b in bands:
-            lab = label if (label is not None and len(bands) == 1) else (
-                ins.name if b == "total" else f"{ins.name}:{b}")
-            out.append((lab, ins, b))
-    labels = [o[0] for o in out]
-    if len(set(labels)) != len(labels):
-        raise InputError(f"instrument gives duplicate band labels {labels}; use a dict with distinct labels")
-    return out
+    return resolve_channels(instrument)
 
 
 class DimmingScenario:
