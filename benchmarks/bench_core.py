@@ -11,8 +11,8 @@ import json
 import os
 import time
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 
 
 def best_of(fn, n=5):
@@ -64,10 +64,18 @@ def main():
         print("builder speed-up: skipped (set SYNTHCORONA_CHIANTI or --chianti to a CHIANTI copy)")
         return
     import warnings
+
     import fiasco
+
     from synthcorona.atomic import locate
-    from synthcorona.atomic.builder import DEFAULT_LOGT, DEFAULT_LOG_DENSITY, compute_ion, default_energy_grid, \
-        proton_electron_ratio, default_elements
+    from synthcorona.atomic.builder import (
+        DEFAULT_LOG_DENSITY,
+        DEFAULT_LOGT,
+        compute_ion,
+        default_elements,
+        default_energy_grid,
+        proton_electron_ratio,
+    )
     fiasco.log.setLevel("ERROR")
     warnings.filterwarnings("ignore")
     src = locate.find_chianti(args.chianti)

@@ -14,8 +14,8 @@ import math
 import time
 import warnings
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 
 from synthcorona.dem import GaussianDEM, MultiComponentDEM
 from synthcorona.dimming import CME, Corona, DimmingLightCurveModel, DimmingScenario, Flare, Observation, Star

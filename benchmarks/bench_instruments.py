@@ -11,8 +11,8 @@ from __future__ import annotations
 import sys
 import time
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 
 import synthcorona as sc
 from synthcorona.instruments import Instrument, load_generic

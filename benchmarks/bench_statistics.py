@@ -17,8 +17,8 @@ import resource
 import time
 import tracemalloc
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 from scipy import optimize, special, stats
 
 CTS = u.ct / u.s

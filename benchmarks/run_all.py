@@ -68,6 +68,7 @@ def _chianti():
 
 def _gauss(n, seed=0):
     import astropy.units as u
+
     import synthcorona as sc
 
     rng = np.random.default_rng(seed)
@@ -76,6 +77,7 @@ def _gauss(n, seed=0):
 
 def _ten_band_sxt():
     import astropy.units as u
+
     from synthcorona.instruments import load_generic
 
     edges = np.geomspace(0.2, 8.0, 11)
@@ -88,6 +90,7 @@ def _dimming_scenario(n_bins=1000):
     import warnings
 
     import astropy.units as u
+
     from synthcorona.dem import GaussianDEM, MultiComponentDEM
     from synthcorona.dimming import CME, Corona, DimmingScenario, Flare, Observation, Star
 
@@ -122,7 +125,7 @@ BENCHMARKS: dict[str, dict] = {}
 
 def bench(name, target=None, about=""):
     def deco(cls):
-        BENCHMARKS[name] = {"ours": getattr(cls, "ours"), "base": getattr(cls, "base", None),
+        BENCHMARKS[name] = {"ours": cls.ours, "base": getattr(cls, "base", None),
                             "agree": getattr(cls, "agree", None), "target": target, "about": about,
                             "measure": getattr(cls, "measure", "time")}
         return cls
@@ -181,6 +184,7 @@ class SpectrumFiasco:
     @staticmethod
     def _setup(quick):
         import astropy.units as u
+
         import synthcorona as sc
 
         dem = sc.GaussianDEM(6.3, 0.25, 1e50 * u.cm**-3)
@@ -191,9 +195,10 @@ class SpectrumFiasco:
     @staticmethod
     def ours(quick, out):
         import astropy.units as u
+
         import synthcorona as sc
         from synthcorona.emissivity import EmissivityTable
-        from synthcorona.tablefile import read_table
+        from synthcorona.io.table_file import read_table
 
         dem, edges, dens = SpectrumFiasco._setup(quick)
         table = sc.load_emissivity()
@@ -228,6 +233,7 @@ class SpectrumFiasco:
     def base(quick, out):
         import astropy.units as u
         import fiasco
+
         import synthcorona as sc
         from synthcorona.abundances import resolve_abundances
 
@@ -279,6 +285,7 @@ class Synthesize:
     @staticmethod
     def _setup(quick):
         import astropy.units as u
+
         import synthcorona as sc
 
         step = 0.1 if quick else 0.01
@@ -287,6 +294,7 @@ class Synthesize:
     @staticmethod
     def ours(quick, out):
         import astropy.units as u
+
         import synthcorona as sc
 
         dem, wl, table = Synthesize._setup(quick)
@@ -299,8 +307,9 @@ class Synthesize:
     @staticmethod
     def base(quick, out):
         import astropy.units as u
+
         from synthcorona.abundances import resolve_abundances
-        from synthcorona.spectral import HC_KEV_ANGSTROM
+        from synthcorona.constants import HC_KEV_ANGSTROM
 
         dem, wl, table = Synthesize._setup(quick)
         c = wl.to_value(u.AA)
@@ -335,6 +344,7 @@ class BandFlux:
     @staticmethod
     def ours(quick, out):
         import astropy.units as u
+
         import synthcorona as sc
 
         table = sc.load_emissivity()
@@ -351,6 +361,7 @@ class BandFlux:
     @staticmethod
     def base(quick, out):
         import astropy.units as u
+
         import synthcorona as sc
 
         table = sc.load_emissivity()
@@ -388,7 +399,7 @@ class Load:
     @staticmethod
     def base(quick, out):
         from synthcorona.emissivity import _default_path
-        from synthcorona.tablefile import read_table
+        from synthcorona.io.table_file import read_table
 
         t, c, _ = best_of(lambda: read_table(_default_path(), verify=True), n=1)
         return {"seconds": t, "cpu": c, "note": "eager read_table (every array decoded to float64)"}
@@ -402,6 +413,7 @@ class Responses:
     @staticmethod
     def ours(quick, out):
         import astropy.units as u
+
         import synthcorona as sc
 
         table = sc.load_emissivity()
@@ -416,6 +428,7 @@ class Responses:
     @staticmethod
     def base(quick, out):
         import astropy.units as u
+
         import synthcorona as sc
 
         table = sc.load_emissivity()
@@ -458,6 +471,7 @@ class CountRates:
     @staticmethod
     def ours(quick, out):
         import astropy.units as u
+
         import synthcorona as sc
 
         table = sc.load_emissivity()
@@ -474,6 +488,7 @@ class CountRates:
     @staticmethod
     def base(quick, out):
         import astropy.units as u
+
         import synthcorona as sc
 
         table = sc.load_emissivity()
@@ -540,6 +555,7 @@ class PDetectWindow:
     @staticmethod
     def ours(quick, out):
         import astropy.units as u
+
         from synthcorona.dimming.statistics import detection_probability
 
         w, wo = _toy_light_curves()
@@ -583,6 +599,7 @@ class PDetectLikelihood:
     @staticmethod
     def ours(quick, out):
         import astropy.units as u
+
         from synthcorona.dimming.statistics import detection_probability
 
         w, wo = _toy_light_curves()
@@ -707,6 +724,7 @@ class GridScaling:
     @staticmethod
     def _run(quick, k):
         import astropy.units as u
+
         from synthcorona.dimming.grids import detection_grid
 
         sc_ = _dimming_scenario()
@@ -756,6 +774,7 @@ class MCMemory:
     @staticmethod
     def ours(quick, out):
         import astropy.units as u
+
         from synthcorona.dimming.statistics import detection_probability
 
         w, wo = _toy_light_curves()

@@ -16,14 +16,15 @@ import json
 import os
 import warnings
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 
 
 def continuum_interp_error(chianti, ions=("o_7", "o_8", "fe_17", "fe_24", "fe_25", "fe_26"), logTs=(6.0, 6.5, 7.0, 7.5)):
     import fiasco
+
     from synthcorona.atomic import locate
-    from synthcorona.atomic.builder import default_energy_grid, default_elements
+    from synthcorona.atomic.builder import default_elements, default_energy_grid
 
     fiasco.log.setLevel("ERROR")
     warnings.filterwarnings("ignore")

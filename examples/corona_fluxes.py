@@ -4,8 +4,8 @@ Scenario (invented): Verdane-2, an active K1 dwarf 8.4 pc away, whose corona is 
 by a two-temperature fit (3 MK and 10 MK components) with coronal abundances and an
 inverse-FIP variant, as if from a survey proposal. Run:  python examples/corona_fluxes.py
 """
-import numpy as np
 import astropy.units as u
+import numpy as np
 
 import synthcorona as sc
 

@@ -17,10 +17,10 @@ import time
 
 import astropy.units as u
 
-from synthcorona.cycle import CountConversion, CyclePhase, compare_cycle, convert_count_rate
-from synthcorona.cycle_plotting import save_cycle_figures
 from synthcorona.dem import GaussianDEM, IsothermalDEM
 from synthcorona.dimming import CME, Corona, DimmingScenario, Observation, Star
+from synthcorona.plotting.cycle import save_cycle_figures
+from synthcorona.products.cycle import CountConversion, CyclePhase, compare_cycle, convert_count_rate
 
 HERE = pathlib.Path(__file__).resolve().parent
 

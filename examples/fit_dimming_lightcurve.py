@@ -14,8 +14,8 @@ Run:  python examples/fit_dimming_lightcurve.py
 import time
 import warnings
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 from scipy import optimize
 
 from synthcorona.dem import GaussianDEM, MultiComponentDEM

@@ -11,8 +11,8 @@ import warnings
 
 import astropy.units as u
 
-from synthcorona.forecast import run_forecast
-from synthcorona.scenario_file import read_forecast_file
+from synthcorona.io.forecast_file import read_forecast_file
+from synthcorona.products.forecast import run_forecast
 
 HERE = pathlib.Path(__file__).resolve().parent
 warnings.simplefilter("ignore", RuntimeWarning)

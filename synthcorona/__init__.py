@@ -6,10 +6,9 @@ The main path (tables, DEMs, synthesis, instruments) never imports fiasco; only
 from .abundances import AbundanceSet, available_sets, fip_bias, resolve_abundances, scale_metallicity
 from .dem import DEM, GaussianDEM, IsothermalDEM, MultiComponentDEM, PowerLawDEM, TabulatedDEM
 from .emissivity import EmissivityTable, load_emissivity
+from .errors import InputError, TableFileError
 from .instruments import Instrument, build_instrument, list_generic, load_generic, load_instrument
 from .synthesis import band_flux, luminosity, radiative_loss, synthesize
-from .tablefile import TableFileError
-from .validation import InputError
 
 __version__ = "0.1.0"
 

@@ -40,14 +40,15 @@ from __future__ import annotations
 
 import functools
 
-import numpy as np
-import astropy.units as u
 import astropy.constants as const
+import astropy.units as u
+import numpy as np
 import xraydb
 
 from .abundances import resolve_abundances
+from .errors import InputError
 from .spectral import to_energy_kev
-from .validation import InputError, as_quantity, check_range
+from .validation import as_quantity, check_range
 
 __all__ = [
     "ISM_ENERGY_MIN",

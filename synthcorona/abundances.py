@@ -61,10 +61,11 @@ from functools import lru_cache
 from types import MappingProxyType
 from typing import Iterable, Mapping
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 
-from .validation import InputError, as_quantity, check_range
+from .errors import InputError
+from .validation import as_quantity, check_range
 
 __all__ = [
     "ELEMENTS",
@@ -162,7 +163,7 @@ class AbundanceSet:
     -----
     ``values`` is stored read-only. ``set[symbol]`` returns the abundance, 0.0 for
     an element H..Zn that the set does not give; an unknown symbol raises
-    :class:`~synthcorona.validation.InputError`.
+    :class:`~synthcorona.errors.InputError`.
     """
 
     name: str
@@ -190,7 +191,7 @@ class AbundanceSet:
     def as_array(self, symbols: Iterable[str]) -> np.ndarray:
         """Abundances for ``symbols`` as a float array (0.0 for elements the set does not give).
 
-        Unknown symbols raise :class:`~synthcorona.validation.InputError`.
+        Unknown symbols raise :class:`~synthcorona.errors.InputError`.
         """
         if isinstance(symbols, str):
             symbols = [symbols]

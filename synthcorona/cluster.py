@@ -17,12 +17,11 @@ import contextlib
 import logging
 import os
 
-from .validation import InputError
+from .errors import InputError
+from .settings import SCHEDULER_ENV, scheduler_address
 
 __all__ = ["SCHEDULER_ENV", "check_scheduler", "dask_client", "scheduler_from_env", "n_workers_of"]
 
-#: Environment variable naming the scheduler address for ``synthcorona build-table``.
-SCHEDULER_ENV = "SYNTHCORONA_SCHEDULER"
 
 
 def scheduler_from_env(scheduler=None):
@@ -31,7 +30,7 @@ def scheduler_from_env(scheduler=None):
     if scheduler is not None:
         check_scheduler(scheduler)
         return scheduler
-    value = os.environ.get(SCHEDULER_ENV) or None
+    value = scheduler_address()
     if value is not None:
         check_scheduler(value, name=SCHEDULER_ENV)
     return value

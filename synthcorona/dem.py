@@ -39,7 +39,7 @@ log T between nodes. Consequences:
 The integrals are done in closed form for each model (normal CDF for the
 Gaussian, exponentials in log T for power laws and tabulated DEMs). A
 continuous DEM with more than 1e-6 of its (non-zero) total EM outside the grid
-raises :class:`~synthcorona.validation.InputError`: EM is never dropped silently.
+raises :class:`~synthcorona.errors.InputError`: EM is never dropped silently.
 """
 from __future__ import annotations
 
@@ -47,11 +47,13 @@ import copy
 import math
 import pathlib
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 from scipy.special import erfc
 
-from .validation import InputError, as_quantity, check_finite, check_positive, check_range
+from .constants import DEFAULT_LOGT_GRID
+from .errors import InputError
+from .validation import as_quantity, check_finite, check_positive, check_range
 
 __all__ = [
     "DEFAULT_LOGT_GRID",
@@ -70,10 +72,6 @@ _INV_SQRT_2PI = 1.0 / math.sqrt(2.0 * math.pi)
 OUTSIDE_TOLERANCE = 1e-6
 #: An isothermal log T within this fraction of a cell width of a node is put on the node.
 SNAP_TOLERANCE = 1e-6
-
-#: Default grid: log10(T/K) = 4.5, 4.55, ..., 8.5 (81 nodes), read-only.
-DEFAULT_LOGT_GRID = np.round(np.linspace(4.5, 8.5, 81), 10)
-DEFAULT_LOGT_GRID.flags.writeable = False
 
 _VOLUME = u.Unit("cm-3")
 _COLUMN = u.Unit("cm-5")

@@ -11,21 +11,19 @@ from __future__ import annotations
 
 import functools
 import importlib.resources
-import os
 import pathlib
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 
-from .tablefile import TableFileError, read_table
-from .validation import InputError, as_quantity, check_finite
+from . import settings
+from .errors import InputError, TableFileError
+from .io.table_file import read_table
+from .validation import as_quantity, check_finite
 
-__all__ = ["EmissivityTable", "load_emissivity", "DEFAULT_TABLE_NAME", "TABLE_ENV"]
+__all__ = ["EmissivityTable", "load_emissivity", "DEFAULT_TABLE_NAME"]
 
 DEFAULT_TABLE_NAME = "emissivity_default.nc"
-#: Environment variable naming a table file that replaces the embedded one wherever no table is passed
-#: (the forecast, spectrum and cycle subcommands set it from their ``--table`` option).
-TABLE_ENV = "SYNTHCORONA_TABLE"
 _GRID_TOL = 1e-9
 
 
@@ -91,7 +89,7 @@ class EmissivityTable:
     def _cont(self, key: str) -> np.ndarray:
         arr, attrs = self._cont_raw[key]
         if np.issubdtype(arr.dtype, np.integer):
-            from .tablefile import decode_full
+            from .io.table_file import decode_full
 
             arr = decode_full(arr, attrs)
             self._cont_raw[key] = (arr, attrs)
@@ -218,7 +216,7 @@ class EmissivityTable:
         if self._line_eps_full is not None:
             return self._line_eps_full[:, k, :]
         if k not in self._line_planes:
-            from .tablefile import decode_plane
+            from .io.table_file import decode_plane
 
             self._line_planes[k] = decode_plane(self._line_q, self._line_attrs, k)
         return self._line_planes[k]
@@ -298,11 +296,11 @@ def load_emissivity(path=None) -> EmissivityTable:
     TableFileError
         Missing, corrupted or foreign file, or a table without CHIANTI provenance.
     """
-    env = os.environ.get(TABLE_ENV, "").strip() if path is None else ""
-    p = pathlib.Path(path) if path is not None else (pathlib.Path(env).expanduser() if env else _default_path())
+    env = settings.table_path() if path is None else None
+    p = pathlib.Path(path) if path is not None else (env if env is not None else _default_path())
     if not p.is_file():
         if env:
-            raise TableFileError(f"{TABLE_ENV}={env}: no such emissivity table file")
+            raise TableFileError(f"{settings.TABLE_ENV}={env}: no such emissivity table file")
         if path is None:
             raise TableFileError(f"the embedded emissivity table {p} is missing from this installation; "
                                  "reinstall synthcorona or build one with 'synthcorona build-table'")

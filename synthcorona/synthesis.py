@@ -22,21 +22,22 @@ instrumental FWHM (FWHM = 2 sqrt(2 ln 2) sigma).
 """
 from __future__ import annotations
 
-import numpy as np
-import astropy.units as u
 import astropy.constants as const
+import astropy.units as u
+import numpy as np
 import xarray as xr
 from scipy.special import erf
 
 from .abundances import resolve_abundances
+from .constants import HC_KEV_ANGSTROM, KEV_TO_ERG
 from .emissivity import EmissivityTable, load_emissivity
-from .spectral import HC_KEV_ANGSTROM, SpectralGrid, band_to_energy
-from .validation import InputError, as_quantity, check_finite
+from .errors import InputError
+from .spectral import SpectralGrid, band_to_energy
+from .validation import as_quantity, check_finite
 
 __all__ = ["synthesize", "band_flux", "luminosity", "radiative_loss", "band_kernel", "emissivity_matrix",
            "prepare"]
 
-KEV_TO_ERG = float((1 * u.keV).to_value(u.erg))
 _FOUR_PI = 4.0 * np.pi
 _FWHM_TO_SIGMA = 1.0 / (2.0 * np.sqrt(2.0 * np.log(2.0)))
 

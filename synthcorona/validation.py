@@ -7,14 +7,13 @@ surfaces as a bare traceback from deep inside numpy.
 """
 from __future__ import annotations
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 
-__all__ = ["InputError", "as_quantity", "as_scalar", "check_finite", "check_range", "check_positive"]
+from .errors import InputError
 
+__all__ = ["as_quantity", "as_scalar", "check_finite", "check_range", "check_positive"]
 
-class InputError(ValueError):
-    """A user-supplied value is out of range, non-finite or otherwise invalid."""
 
 
 def _short(value) -> str:

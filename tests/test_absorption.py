@@ -2,9 +2,9 @@
 
 Outside references are written beside each expected value.
 """
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 import xraydb
 
 from synthcorona.absorption import (
@@ -12,7 +12,7 @@ from synthcorona.absorption import (
     ism_transmission,
     photoionization_cross_section,
 )
-from synthcorona.validation import InputError
+from synthcorona.errors import InputError
 
 # He/H of Asplund, Amarsi & Grevesse 2021, A&A 653, A141, Table 2: log eps(He) = 10.914
 A_HE = 10 ** (10.914 - 12)

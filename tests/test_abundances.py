@@ -2,9 +2,9 @@
 import json
 import math
 
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 
 from synthcorona.abundances import (
     ELEMENTS,
@@ -17,7 +17,7 @@ from synthcorona.abundances import (
     resolve_abundances,
     scale_metallicity,
 )
-from synthcorona.validation import InputError
+from synthcorona.errors import InputError
 
 
 def lin(log_eps):

@@ -1,8 +1,8 @@
 """The command line, end to end, against the Python API."""
 import pathlib
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 import pytest
 from astropy.table import QTable
 
@@ -40,7 +40,8 @@ def test_emission_bad_input_exits_2_with_one_line(tmp_path, capsys, args, text):
 def test_table_option_and_environment_select_the_emissivity_table(tmp_path, monkeypatch, capsys):
     import shutil
 
-    from synthcorona.emissivity import TABLE_ENV, load_emissivity
+    from synthcorona.emissivity import load_emissivity
+    from synthcorona.settings import TABLE_ENV
 
     embedded = load_emissivity()
     copy = tmp_path / "my_table.nc"

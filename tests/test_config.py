@@ -1,10 +1,11 @@
-"""TOML input reading (synthcorona.config): typed keys, units, ranges, and errors naming file and key."""
-import numpy as np
+"""TOML input reading (synthcorona.io.toml): typed keys, units, ranges, and errors naming file and key."""
 import astropy.units as u
+import numpy as np
 import pytest
 
 import synthcorona as sc
-from synthcorona.config import ScenarioError, abundances_from_key, dem_from_section, load_toml
+from synthcorona.errors import ScenarioError
+from synthcorona.io.toml import abundances_from_key, dem_from_section, load_toml
 
 
 def _dem(text):

@@ -1,4 +1,4 @@
-"""Activity-cycle comparison (synthcorona.cycle), cycle files, and the 'cycle' and 'list' subcommands.
+"""Activity-cycle comparison (synthcorona.products.cycle), cycle files, and the 'cycle' and 'list' subcommands.
 
 References: exact algebraic identities (flux and count rate are linear in EM, so conversions must
 invert to rounding), direct calls of the already-tested band_flux / count_rate API, and thermal
@@ -6,19 +6,18 @@ free-free emission (Rybicki & Lightman 1979, eq. 5.14b) for the temperature depe
 """
 import pathlib
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 import pytest
 from scipy.special import k0e
 
-from synthcorona.config import ScenarioError
-from synthcorona.cycle import CyclePhase, compare_cycle, convert_count_rate, cycle_tables
-from synthcorona.cycle_file import read_cycle_file
 from synthcorona.dem import GaussianDEM, IsothermalDEM
 from synthcorona.dimming import Star
+from synthcorona.errors import InputError, ScenarioError
 from synthcorona.instruments import Instrument, load_generic
+from synthcorona.io.cycle_file import read_cycle_file
+from synthcorona.products.cycle import CyclePhase, compare_cycle, convert_count_rate, cycle_tables
 from synthcorona.synthesis import band_flux
-from synthcorona.validation import InputError
 
 EXAMPLE = pathlib.Path(__file__).parent.parent / "examples" / "cycle" / "corvan9_cycle.toml"
 FLUX = u.erg / u.s / u.cm ** 2
@@ -87,8 +86,8 @@ def test_hardness_and_amplitude_equal_direct_computation():
 
 
 def test_minimum_detectable_mass_per_phase_is_consistent_with_detection_probability():
-    from synthcorona.cycle import _phase_scenario
     from synthcorona.dimming import CME, Corona, DimmingScenario, Observation
+    from synthcorona.products.cycle import _phase_scenario
 
     star = Star(distance=3 * u.pc, nh=NH)
     ref = DimmingScenario(star, Corona(GaussianDEM(6.3, 0.2, 1e51 * u.cm ** -3), density=DENSITY),
@@ -151,11 +150,11 @@ def test_hardness_follows_bremsstrahlung_exponential(table):
 
 
 def test_cli_end_to_end_matches_api(tmp_path, capsys):
-    from astropy.table import QTable
     import xarray as xr
+    from astropy.table import QTable
 
     from synthcorona.cli import main
-    from synthcorona.cycle import _phase_scenario
+    from synthcorona.products.cycle import _phase_scenario
 
     out = tmp_path / "out"
     assert main(["cycle", str(EXAMPLE), "--out", str(out), "--realisations", "1000"]) == 0

@@ -3,9 +3,9 @@ import math
 import subprocess
 import sys
 
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 from astropy.table import QTable
 from scipy.integrate import quad
 
@@ -17,7 +17,7 @@ from synthcorona.dem import (
     PowerLawDEM,
     TabulatedDEM,
 )
-from synthcorona.validation import InputError
+from synthcorona.errors import InputError
 
 GRID = DEFAULT_LOGT_GRID  # log10 T = 4.5 .. 8.5, step 0.05 (81 nodes)
 EM = 1e50 * u.cm**-3

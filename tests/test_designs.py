@@ -3,17 +3,26 @@
 Outside references are named beside each expected value; "design target" marks numbers
 that are choices of our own generic designs, checked for consistency, not physics.
 """
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 from astropy.table import QTable
 
 import synthcorona as sc
-from synthcorona.instruments import (GENERIC_EUV_CHANNELS, GrazingMirror, Instrument, MultilayerMirror,
-                                     SiliconDetector, build_instrument, list_generic, load_generic, load_instrument)
-from synthcorona.instruments import optics
-from synthcorona.instruments.plotting import plot_effective_area, plot_folded_spectrum, plot_temperature_responses
-from synthcorona.validation import InputError
+from synthcorona.errors import InputError
+from synthcorona.instruments import (
+    GENERIC_EUV_CHANNELS,
+    GrazingMirror,
+    Instrument,
+    MultilayerMirror,
+    SiliconDetector,
+    build_instrument,
+    list_generic,
+    load_generic,
+    load_instrument,
+    optics,
+)
+from synthcorona.plotting.instruments import plot_effective_area, plot_folded_spectrum, plot_temperature_responses
 
 PH = u.ph / (u.s * u.cm**2)
 

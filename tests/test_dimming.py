@@ -2,21 +2,30 @@
 import math
 import warnings
 
-import numpy as np
 import astropy.constants as const
 import astropy.units as u
+import numpy as np
 import pytest
 
 from synthcorona.abundances import mean_mass_per_hydrogen
 from synthcorona.dem import GaussianDEM, MultiComponentDEM
 from synthcorona.dimming import (
-    CME, Corona, DimmingLightCurveModel, DimmingScenario, Flare, Observation, Star, mass_to_emission_measure,
-    recovery_time, refill_time, rtv_density,
+    CME,
+    Corona,
+    DimmingLightCurveModel,
+    DimmingScenario,
+    Flare,
+    Observation,
+    Star,
+    mass_to_emission_measure,
+    recovery_time,
+    refill_time,
+    rtv_density,
 )
 from synthcorona.dimming.profile import binned_profile, dimming_profile, profile_integral
 from synthcorona.dimming.statistics import poisson_loglike
+from synthcorona.errors import InputError
 from synthcorona.instruments.designs import load_generic
-from synthcorona.validation import InputError
 
 # Full-disk quiet-Sun DEM approximated by one Gaussian in log T: peak near log T = 6.15, width 0.2 dex,
 # total EM 5e49 cm-3 (from memory: quiet-Sun DEMs peak at log T 6.1-6.2 and the full-disk EM is of

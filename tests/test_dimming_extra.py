@@ -3,20 +3,26 @@ test, and the depth-mass numbers quoted in docs/dimming.md."""
 import math
 import warnings
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 import pytest
 import xarray as xr
 from scipy import special, stats
 
 from synthcorona.dem import GaussianDEM, IsothermalDEM, MultiComponentDEM
 from synthcorona.dimming import (
-    CME, Corona, DimmingScenario, Observation, Star, detection_grid, lightcurve_from_em_series,
-    plot_detection_vs_mass, plot_light_curves, plot_min_mass_vs_distance,
+    CME,
+    Corona,
+    DimmingScenario,
+    Observation,
+    Star,
+    detection_grid,
+    lightcurve_from_em_series,
 )
 from synthcorona.dimming.statistics import WINDOW_NORMAL_LIMIT, window_test
+from synthcorona.errors import InputError
 from synthcorona.instruments.designs import load_generic
-from synthcorona.validation import InputError
+from synthcorona.plotting.dimming import plot_detection_vs_mass, plot_light_curves, plot_min_mass_vs_distance
 
 # Same invented stars as tests/test_dimming.py: a quiet-Sun-like Gaussian DEM (peak log T 6.15, 0.2 dex,
 # 5e49 cm-3; from memory, order of magnitude of full-disk quiet-Sun DEMs) and an invented active K dwarf.

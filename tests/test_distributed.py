@@ -12,14 +12,14 @@ import shutil
 import sys
 import warnings
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 import pytest
 import xarray as xr
 
 from synthcorona.dem import GaussianDEM, MultiComponentDEM
 from synthcorona.dimming import CME, Corona, DimmingScenario, Observation, Star, detection_grid
-from synthcorona.validation import InputError
+from synthcorona.errors import InputError
 
 distributed = pytest.importorskip("distributed")
 
@@ -83,7 +83,7 @@ def _work_dir(serial_build, tmp_path) -> pathlib.Path:
 
 
 def _assert_same_table(a_path, b_path):
-    from synthcorona.tablefile import read_table
+    from synthcorona.io.table_file import read_table
 
     a, b = read_table(a_path), read_table(b_path)
     assert a.attrs["content_hash"] == b.attrs["content_hash"]
@@ -161,6 +161,7 @@ class _FailFirstAttempt(distributed.WorkerPlugin):
 @pytest.mark.chianti
 def test_dask_build_survives_failed_task_and_dead_worker(serial_build, client, tmp_path):
     import cloudpickle
+
     from synthcorona.atomic.builder import build_table
 
     cloudpickle.register_pickle_by_value(sys.modules[__name__])   # the plugin class travels by value
@@ -183,6 +184,7 @@ def test_dask_build_survives_failed_task_and_dead_worker(serial_build, client, t
 @pytest.mark.chianti
 def test_build_without_retries_reports_the_failure(serial_build, client, tmp_path):
     import cloudpickle
+
     from synthcorona.atomic.builder import build_table
 
     cloudpickle.register_pickle_by_value(sys.modules[__name__])

@@ -1,6 +1,6 @@
 """Density handling of the emissivity table: exact at nodes, log-log between, constant pressure."""
-import numpy as np
 import astropy.units as u
+import numpy as np
 import pytest
 
 import synthcorona as sc

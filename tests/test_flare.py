@@ -17,10 +17,19 @@ import numpy as np
 import pytest
 
 from synthcorona.dimming.flare import (
-    C1_EQUILIBRIUM, C1_RADIATIVE, C2, C3, KAPPA0, LoopFlareModel, analytic_radiative_loss,
-    conductive_cooling_time, energy_budget, flare_em_temperature, radiative_cooling_time,
+    C1_EQUILIBRIUM,
+    C1_RADIATIVE,
+    C2,
+    C3,
+    KAPPA0,
+    LoopFlareModel,
+    analytic_radiative_loss,
+    conductive_cooling_time,
+    energy_budget,
+    flare_em_temperature,
+    radiative_cooling_time,
 )
-from synthcorona.validation import InputError
+from synthcorona.errors import InputError
 
 K_B = 1.380649e-16  # erg/K (CODATA 2018, exact)
 HEAT = u.erg / u.cm ** 3 / u.s

@@ -8,7 +8,7 @@ import pytest
 import xarray as xr
 from astropy.table import QTable
 
-import synthcorona.scenario_file as scenario_file
+import synthcorona.io.forecast_file as scenario_file
 from synthcorona.cli import main
 
 EXAMPLES = pathlib.Path(__file__).parent.parent / "examples" / "scenarios"
@@ -122,7 +122,7 @@ def test_report_and_figures(run, capsys):
 @pytest.mark.parametrize("name", SCENARIOS)
 def test_spectrum_equals_the_api(name, tmp_path, capsys):
     from synthcorona import band_flux
-    from synthcorona.commands.spectrum import emission_density
+    from synthcorona.cli.spectrum import emission_density
 
     rc = main(["spectrum", str(EXAMPLES / f"{name}.toml"), "--out", str(tmp_path), "--no-figures"])
     assert rc == 0

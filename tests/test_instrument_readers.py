@@ -6,21 +6,27 @@ area in cm^2).  Expected numbers are analytic integrals computed here with numpy
 values copied from the files written in the test.
 """
 import os
-import warnings
 
+import astropy.units as u
 import numpy as np
 import pytest
-import scipy.sparse as sp
-import astropy.units as u
 from astropy.io import fits
 from astropy.table import QTable
 
+from synthcorona.constants import HC_KEV_ANGSTROM
+from synthcorona.errors import InputError
 from synthcorona.instruments.readers import (
-    InstrumentFileError, InstrumentFileWarning, chianti_area_names, load_instrument, read_area_table, read_arf,
-    read_chianti_area, read_rmf, write_arf, write_rmf,
+    InstrumentFileError,
+    InstrumentFileWarning,
+    chianti_area_names,
+    load_instrument,
+    read_area_table,
+    read_arf,
+    read_chianti_area,
+    read_rmf,
+    write_arf,
+    write_rmf,
 )
-from synthcorona.spectral import HC_KEV_ANGSTROM
-from synthcorona.validation import InputError
 
 PH = u.ph / (u.s * u.cm**2)
 

@@ -6,14 +6,14 @@ assertion) or hand calculations written out in comments.
 import subprocess
 import sys
 
+import astropy.units as u
 import numpy as np
 import pytest
 import scipy.sparse as sp
-import astropy.units as u
 
+from synthcorona.constants import HC_KEV_ANGSTROM
+from synthcorona.errors import InputError
 from synthcorona.instruments.response import Instrument
-from synthcorona.spectral import HC_KEV_ANGSTROM
-from synthcorona.validation import InputError
 
 PH = u.ph / (u.s * u.cm**2)
 

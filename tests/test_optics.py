@@ -5,11 +5,12 @@ xraydb's own tabulated data (Chantler 2000, J. Phys. Chem. Ref. Data 29, 597) th
 test recomputes the physics formula directly from the raw table so that the
 composition, unit handling and formula of the library are checked.
 """
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 import xraydb
 
+from synthcorona.errors import InputError
 from synthcorona.instruments import optics
 from synthcorona.instruments.optics import (
     design_throughput,
@@ -20,7 +21,6 @@ from synthcorona.instruments.optics import (
     silicon_qe,
     stack_reflectivity,
 )
-from synthcorona.validation import InputError
 
 HC_EV_NM = 1239.8419843320026  # CODATA 2018 h c in eV nm
 

@@ -6,8 +6,8 @@ import astropy.units as u
 import numpy as np
 import pytest
 
-from synthcorona.config import ScenarioError
-from synthcorona.scenario_file import flare_energy_from_class, read_forecast_file
+from synthcorona.errors import ScenarioError
+from synthcorona.io.forecast_file import flare_energy_from_class, read_forecast_file
 
 EXAMPLES = pathlib.Path(__file__).parent.parent / "examples" / "scenarios"
 

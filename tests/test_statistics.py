@@ -13,20 +13,30 @@ No timing asserts: speed is in benchmarks/bench_statistics.py.
 import math
 import tracemalloc
 
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 from scipy import optimize, stats
 
-from synthcorona.validation import InputError
 from synthcorona.dimming import noise
 from synthcorona.dimming.noise import (
-    CountSampler, chunk_size_for, damped_random_walk, iter_realisations, poisson_counts,
+    CountSampler,
+    chunk_size_for,
+    damped_random_walk,
+    iter_realisations,
+    poisson_counts,
 )
 from synthcorona.dimming.statistics import (
-    calibrate_threshold, cash_statistic, detection_probability, likelihood_ratio, minimum_detectable,
-    poisson_loglike, step_snr, window_test,
+    calibrate_threshold,
+    cash_statistic,
+    detection_probability,
+    likelihood_ratio,
+    minimum_detectable,
+    poisson_loglike,
+    step_snr,
+    window_test,
 )
+from synthcorona.errors import InputError
 
 CTS = u.ct / u.s
 

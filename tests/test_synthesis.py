@@ -1,11 +1,11 @@
 """Checks of spectra, band fluxes and Λ(T) computed from the embedded table against published physics."""
-import numpy as np
-import astropy.units as u
 import astropy.constants as const
+import astropy.units as u
+import numpy as np
 import pytest
 
 import synthcorona as sc
-from synthcorona.synthesis import prepare, band_kernel
+from synthcorona.synthesis import band_kernel, prepare
 
 
 def _ff_per_kev(table, element="H"):

@@ -1,12 +1,10 @@
 """The table builder against direct fiasco calculations (needs CHIANTI: SYNTHCORONA_CHIANTI)."""
 import json
-import os
 import warnings
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 import pytest
-
 from conftest import SMALL_ELEMENTS, SMALL_LOGN, SMALL_LOGT
 
 pytestmark = pytest.mark.chianti
@@ -89,9 +87,9 @@ def test_dropped_lines_carry_under_one_percent_of_any_window(small_build, built)
     # The issue's criterion: against a no-threshold build of the same ions, the dropped lines carry < 1 % of the
     # emission in any 10 A window, at any grid point where that window is significant (>= 1 % of the line
     # emission of these ions at that point, photospheric abundances).
+    from synthcorona.abundances import resolve_abundances
     from synthcorona.atomic.builder import build_table
     from synthcorona.emissivity import load_emissivity
-    from synthcorona.abundances import resolve_abundances
 
     full_path = build_table(small_build["work"] / "nothreshold.nc", chianti=small_build["chianti"],
                             settings=_settings(small_build, line_threshold=0.0), jobs=1,

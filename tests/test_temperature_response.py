@@ -5,16 +5,23 @@ lines and the H/He continuum. Reference values are named beside each assertion: 
 published figure (marked "from memory" where quoted from memory), an independent code
 path of this package written out in the test, or "common practice, no source".
 """
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 
 import synthcorona as sc
 from synthcorona.absorption import ism_cross_section
-from synthcorona.instruments import (Instrument, counts_to_flux, hardness_ratio, hardness_ratio_curve, load_generic,
-                                     observed_flux, band_luminosity)
+from synthcorona.errors import InputError
+from synthcorona.instruments import (
+    Instrument,
+    band_luminosity,
+    counts_to_flux,
+    hardness_ratio,
+    hardness_ratio_curve,
+    load_generic,
+    observed_flux,
+)
 from synthcorona.synthesis import band_kernel, prepare
-from synthcorona.validation import InputError
 
 PC_CM = (1 * u.pc).to_value(u.cm)
 PH = u.ph / (u.s * u.cm**2)

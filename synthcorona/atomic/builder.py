@@ -46,10 +46,10 @@ import uuid
 
 import numpy as np
 
-from ..validation import InputError
-from . import locate
-from ..tablefile import write_table
 from ..cluster import dask_client, scheduler_from_env
+from ..errors import InputError
+from ..io.table_file import write_table
+from . import locate
 
 __all__ = ["BuildSettings", "build_table", "default_elements", "DEFAULT_LOGT", "DEFAULT_LOG_DENSITY",
            "default_energy_grid"]
@@ -146,8 +146,9 @@ def _install_identity_cache() -> None:
     dataset (about 10 ms a call, hundreds of calls per ion); the answers never change.
     """
     import functools
-    import plasmapy.particles as pp
+
     import fiasco.base as fbase
+    import plasmapy.particles as pp
 
     for fn in ("atomic_number", "atomic_symbol", "element_name"):
         orig = getattr(pp, fn)
@@ -280,6 +281,7 @@ def compute_ion(ion_name: str, h5: str, logT: np.ndarray, log_density: np.ndarra
     erg cm3 s-1 keV-1 per unit abundance; ``Z``, ``stage``, ``mass_amu``, ``ip_ev``.
     """
     import warnings
+
     import astropy.units as u
     import fiasco
     from fiasco.util.exceptions import MissingDatasetException, MissingIonError

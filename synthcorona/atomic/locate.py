@@ -15,22 +15,19 @@ only inside functions.
 from __future__ import annotations
 
 import hashlib
-import os
 import pathlib
 import tarfile
 from dataclasses import dataclass
 
-from ..validation import InputError
+from ..errors import ChiantiNotFoundError
+from ..settings import CHIANTI_ENV as ENV_VAR
+from ..settings import chianti_path
 
-__all__ = ["ChiantiNotFoundError", "ChiantiSource", "cache_dir", "find_chianti", "ensure_hdf5"]
+__all__ = ["ChiantiSource", "cache_dir", "find_chianti", "ensure_hdf5"]
 
-ENV_VAR = "SYNTHCORONA_CHIANTI"
 #: CHIANTI versions whose file formats fiasco 0.8 reads (fiasco's own list, checked at run time).
 MIN_VERSION = (8, 0)
 
-
-class ChiantiNotFoundError(InputError):
-    """No usable CHIANTI database was found; the message says where we looked and how to fix it."""
 
 
 @dataclass(frozen=True)
@@ -172,9 +169,8 @@ def find_chianti(path=None) -> ChiantiSource:
         src = _check_tree(p, "argument", tried)
         if src:
             return src
-    env = os.environ.get(ENV_VAR)
-    if env:
-        p = pathlib.Path(env).expanduser()
+    p = chianti_path()
+    if p is not None:
         if p.exists():
             src = _check_tree(p, f"environment variable {ENV_VAR}", tried)
             if src:

@@ -1,18 +1,24 @@
-"""CME coronal dimming forecasts: flare loop evolution, dimming models and their instrument signatures."""
+"""CME coronal dimming forecasts: flare loop evolution, dimming models and their instrument signatures.
+
+Figures of these results are in :mod:`synthcorona.plotting.dimming`.
+"""
+from .grids import detection_grid
+from .lightcurve_model import DimmingLightCurveModel
 from .mass_removal import (
-    expansion_emission_measure_change, mass_to_emission_measure, max_removable_mass, removal_weights, removed_emission_measure, rtv_density,
+    expansion_emission_measure_change,
+    mass_to_emission_measure,
+    max_removable_mass,
+    removal_weights,
+    removed_emission_measure,
+    rtv_density,
 )
 from .profile import cooling_time, dimming_profile, onset_time, recovery_time, refill_time, sound_speed
 from .scenario import CME, Corona, DimmingScenario, Flare, Observation, Star
-from .lightcurve_model import DimmingLightCurveModel
 from .timeseries import lightcurve_from_em_series
-from .grids import detection_grid
-from .plotting import plot_detection_vs_mass, plot_light_curves, plot_min_mass_vs_distance
 
 __all__ = [
     "expansion_emission_measure_change", "mass_to_emission_measure", "max_removable_mass", "removal_weights", "removed_emission_measure", "rtv_density",
     "cooling_time", "dimming_profile", "onset_time", "recovery_time", "refill_time", "sound_speed",
     "CME", "Corona", "DimmingScenario", "Flare", "Observation", "Star", "DimmingLightCurveModel",
-    "lightcurve_from_em_series", "detection_grid", "plot_light_curves", "plot_detection_vs_mass",
-    "plot_min_mass_vs_distance",
+    "lightcurve_from_em_series", "detection_grid",
 ]

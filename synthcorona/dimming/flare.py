@@ -109,15 +109,19 @@ import math
 import warnings
 from typing import Callable, NamedTuple
 
-import numpy as np
 import astropy.constants as const
 import astropy.units as u
+import numpy as np
 import xarray as xr
 from scipy.integrate import solve_ivp, trapezoid
 from scipy.optimize import brentq
 from scipy.special import erf
 
-from ..validation import InputError, as_quantity, check_finite, check_positive, check_range
+from ..constants import K_B_CGS as K_B
+from ..constants import M_E_G as M_E
+from ..constants import M_P_G as M_P
+from ..errors import InputError
+from ..validation import as_quantity, check_finite, check_positive, check_range
 
 __all__ = [
     "LoopFlareModel", "conductive_cooling_time", "radiative_cooling_time", "energy_budget",
@@ -125,9 +129,6 @@ __all__ = [
     "KAPPA0", "C1_EQUILIBRIUM", "C1_RADIATIVE", "C2", "C3",
 ]
 
-K_B = float(const.k_B.cgs.value)
-M_P = float(const.m_p.cgs.value)
-M_E = float(const.m_e.cgs.value)
 #: Spitzer parallel conductivity coefficient [erg s-1 cm-1 K-7/2] (KPC08).
 KAPPA0 = 1.0e-6
 #: Ratio of average to apex temperature (CBK12).

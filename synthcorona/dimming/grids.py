@@ -22,11 +22,12 @@ import itertools
 import math
 import warnings
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 import xarray as xr
 
-from ..validation import InputError, as_quantity
+from ..errors import InputError
+from ..validation import as_quantity
 
 __all__ = ["detection_grid"]
 

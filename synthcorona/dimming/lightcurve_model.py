@@ -19,11 +19,11 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 from scipy.special import xlogy
 
-from ..validation import InputError
+from ..errors import InputError
 
 __all__ = ["DimmingLightCurveModel"]
 
@@ -54,7 +54,7 @@ class DimmingLightCurveModel:
     The flare excess is zero before ``t0`` and after the end of the scenario's flare run (which
     covers the scenario's light curve from any ``t0`` >= 0, or stops early; see
     ``attrs["flare_termination"]``). A mass above the largest removable mass raises
-    :class:`~synthcorona.validation.InputError`.
+    :class:`~synthcorona.errors.InputError`.
     """
 
     def __init__(self, scenario):

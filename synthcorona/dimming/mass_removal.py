@@ -34,7 +34,7 @@ Temperature distribution
 
 The corona cannot lose more than it has: :math:`\Delta EM\, w_T \le EM_T` at every node, i.e.
 :math:`\Delta EM \le \min_{w_T > 0} EM_T / w_T` (for the default window this is the EM inside
-the window). A larger request raises :class:`~synthcorona.validation.InputError` stating the
+the window). A larger request raises :class:`~synthcorona.errors.InputError` stating the
 largest removable mass at that density.
 
 Depth per band
@@ -65,13 +65,15 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
-import astropy.constants as const
 import astropy.units as u
+import numpy as np
 import xarray as xr
 
 from ..abundances import mean_mass_per_hydrogen
-from ..validation import InputError, as_quantity, check_range
+from ..constants import K_B_CGS as K_B
+from ..constants import M_H_G as M_H
+from ..errors import InputError
+from ..validation import as_quantity, check_range
 
 __all__ = [
     "DENSITY_RANGE", "rtv_density", "mass_to_emission_measure", "removal_weights",
@@ -79,9 +81,6 @@ __all__ = [
     "expansion_emission_measure_change",
 ]
 
-K_B = float(const.k_B.cgs.value)
-#: Mass of the hydrogen atom [g] (IUPAC standard atomic weight 1.008 u).
-M_H = float((1.008 * u.u).to_value(u.g))
 #: Valid range of the source electron density [cm-3] (coronal plasma; common practice, no source).
 DENSITY_RANGE = (1e6, 1e13)
 #: Valid range of the loop half-length for the RTV density [cm] (1 Mm - 10 R_sun).

@@ -74,11 +74,12 @@ import numbers
 from dataclasses import dataclass
 from typing import Iterator
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 from scipy import signal, special, stats
 
-from ..validation import InputError, as_quantity, check_finite, check_range
+from ..errors import InputError
+from ..validation import as_quantity, check_finite, check_range
 
 __all__ = [
     "MEMORY_BUDGET", "MAX_RESULT_BYTES", "WORK_ARRAYS", "BLOCK_ELEMENTS", "PPF_MAX_COLUMNS",

@@ -34,18 +34,18 @@ Recovery time
 """
 from __future__ import annotations
 
-import numpy as np
-import astropy.constants as const
 import astropy.units as u
+import numpy as np
 
-from ..validation import InputError, as_quantity, as_scalar, check_range
+from ..constants import K_B_CGS as K_B
+from ..constants import M_P_G as M_P
+from ..errors import InputError
+from ..validation import as_quantity, as_scalar, check_range
 from .flare import conductive_cooling_time, radiative_cooling_time
 
 __all__ = ["sound_speed", "refill_time", "cooling_time", "recovery_time", "onset_time",
            "dimming_profile", "profile_integral", "binned_profile", "DEFAULT_UPFLOW_FRACTION"]
 
-K_B = float(const.k_B.cgs.value)
-M_P = float(const.m_p.cgs.value)
 GAMMA = 5.0 / 3.0
 #: Default upflow speed as a fraction of the sound speed (see module docstring).
 DEFAULT_UPFLOW_FRACTION = 0.05

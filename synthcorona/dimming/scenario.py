@@ -45,14 +45,16 @@ import warnings
 from dataclasses import dataclass, field
 from typing import Any
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 import xarray as xr
 from scipy.integrate import cumulative_trapezoid
 
 from ..abundances import mean_mass_per_hydrogen
+from ..constants import PARSEC_CM
 from ..dem import DEM
-from ..validation import InputError, as_quantity, as_scalar, check_range
+from ..errors import InputError
+from ..validation import as_quantity, as_scalar, check_range
 from . import mass_removal as mr
 from . import profile as prof
 from .flare import LoopFlareModel
@@ -62,7 +64,6 @@ from .statistics import minimum_detectable as _minimum_detectable
 
 __all__ = ["Star", "Corona", "CME", "Flare", "Observation", "DimmingScenario"]
 
-_PC_CM = float((1.0 * u.pc).to_value(u.cm))
 #: A band with a quiescent rate below this (one count in ~30,000 years) is refused as having no counts.
 MIN_QUIESCENT_RATE = 1e-12
 
@@ -80,7 +81,7 @@ class Star:
     radius: u.Quantity | None = None
 
     def __post_init__(self):
-        _scalar("distance", self.distance, u.cm, lo=0.0, hi=1e4 * _PC_CM, unit_label="cm", inclusive=False)
+        _scalar("distance", self.distance, u.cm, lo=0.0, hi=1e4 * PARSEC_CM, unit_label="cm", inclusive=False)
         if self.nh is not None:
             _scalar("nh", self.nh, u.cm ** -2, lo=0.0, hi=1e24, unit_label="cm-2")
         if self.radius is not None:
@@ -302,7 +303,7 @@ class DimmingScenario:
         self.flux_kernel = np.array(eflux)                    # (n_b, n_T) erg s-1 cm3 (4 pi)
         self.band_limits = np.array(bnds)
         d_cm = float(self.star.distance.to_value(u.cm))
-        self.scale = (_PC_CM / d_cm) ** 2
+        self.scale = (PARSEC_CM / d_cm) ** 2
         base = self.kernel @ self.quiescent_weights
         mr.band_depths(self.removal_weights, self.quiescent_weights, self.kernel, self.labels)  # checks counts
         self.quiescent_rate = base * self.scale               # ct/s

@@ -69,15 +69,23 @@ import hashlib
 import math
 from typing import Callable, Iterable, NamedTuple
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 import xarray as xr
 from scipy import optimize, special
 
-from ..validation import InputError, check_finite, check_range
+from ..errors import InputError
+from ..validation import check_finite, check_range
 from .noise import (
-    MEMORY_BUDGET, CountSampler, RedNoise, as_seed_sequence, bin_widths, check_count, child_sequence,
-    rate_values, time_values,
+    MEMORY_BUDGET,
+    CountSampler,
+    RedNoise,
+    as_seed_sequence,
+    bin_widths,
+    check_count,
+    child_sequence,
+    rate_values,
+    time_values,
 )
 
 __all__ = [

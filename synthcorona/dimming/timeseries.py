@@ -28,15 +28,16 @@ from __future__ import annotations
 import os
 import pathlib
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 import xarray as xr
 
-from ..validation import InputError, as_quantity, check_range
+from ..constants import PARSEC_CM
+from ..errors import InputError
+from ..validation import as_quantity, check_range
 
 __all__ = ["lightcurve_from_em_series", "regrid_weights"]
 
-_PC_CM = float((1.0 * u.pc).to_value(u.cm))
 _SNAP = 1e-6
 _TEMPERATURE_DIMS = ("logT", "temperature")
 
@@ -216,8 +217,8 @@ def lightcurve_from_em_series(em, instrument, distance, nh=None, bands=None, tab
     w = values @ r                                                     # (n_time, n_T)
 
     if bands is not None:
-        from ..instruments.response import Instrument
         from ..instruments.designs import load_generic
+        from ..instruments.response import Instrument
 
         if isinstance(instrument, str):
             instrument = load_generic(instrument)
@@ -242,7 +243,7 @@ def lightcurve_from_em_series(em, instrument, distance, nh=None, bands=None, tab
         names.append(ins.name)
         attrs_k = attrs_k or dict(k.attrs)
     kern = np.array(rows)                                              # (n_b, n_T)
-    scale = (_PC_CM / d_cm) ** 2
+    scale = (PARSEC_CM / d_cm) ** 2
     rates = (w @ kern.T).T * scale                                     # (n_b, n_time)
     labels = [lab for lab, _, _ in resolved]
 
@@ -250,7 +251,7 @@ def lightcurve_from_em_series(em, instrument, distance, nh=None, bands=None, tab
         "source": source,
         "em_convention": "emission measure per temperature bin (cm-3), re-gridded with linear hat weights in log T",
         "instruments": ", ".join(f"{lab}={n}" for lab, n in zip(labels, names)),
-        "distance_pc": d_cm / _PC_CM,
+        "distance_pc": d_cm / PARSEC_CM,
         "nh_cm-2": float(as_quantity("nh", nh, u.cm ** -2).value) if nh is not None else 0.0,
         "abundances": str(abundances),
         "density": str(density) if density is not None else "table default",

@@ -7,15 +7,38 @@
 * :func:`build_instrument` -- a physics-built design (mirror, filters, silicon detector).
 * observables -- :func:`observed_flux`, :func:`band_luminosity`, :func:`hardness_ratio`,
   :func:`hardness_ratio_curve`, :func:`counts_to_flux`.
-* plotting -- :mod:`synthcorona.instruments.plotting` (imported on use: needs matplotlib).
+* plotting -- :mod:`synthcorona.plotting.instruments` (imported on use: needs matplotlib).
 """
+from .designs import (
+                      GENERIC_EUV_CHANNELS,
+                      GrazingMirror,
+                      MultilayerMirror,
+                      SiliconDetector,
+                      build_instrument,
+                      list_generic,
+                      load_generic,
+                      load_instrument,
+)
+from .observables import (
+                      REFERENCE_DISTANCE,
+                      band_luminosity,
+                      counts_to_flux,
+                      hardness_ratio,
+                      hardness_ratio_curve,
+                      observed_flux,
+)
+from .readers import (
+                      InstrumentFileError,
+                      InstrumentFileWarning,
+                      chianti_area_names,
+                      read_area_table,
+                      read_arf,
+                      read_chianti_area,
+                      read_rmf,
+                      write_arf,
+                      write_rmf,
+)
 from .response import COUNT_RATE_UNIT, PHOTON_FLUX_UNIT, TEMPERATURE_RESPONSE_UNIT, TOTAL_BAND, Instrument
-from .readers import (InstrumentFileError, InstrumentFileWarning, chianti_area_names, read_area_table, read_arf,
-                      read_chianti_area, read_rmf, write_arf, write_rmf)
-from .designs import (GENERIC_EUV_CHANNELS, GrazingMirror, MultilayerMirror, SiliconDetector, build_instrument,
-                      list_generic, load_generic, load_instrument)
-from .observables import (REFERENCE_DISTANCE, band_luminosity, counts_to_flux, hardness_ratio, hardness_ratio_curve,
-                          observed_flux)
 
 __all__ = [
     "Instrument", "COUNT_RATE_UNIT", "PHOTON_FLUX_UNIT", "TEMPERATURE_RESPONSE_UNIT", "TOTAL_BAND",

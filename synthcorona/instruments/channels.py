@@ -5,7 +5,7 @@ from __future__ import annotations
 import pathlib
 from typing import Any
 
-from ..validation import InputError
+from ..errors import InputError
 
 __all__ = ["resolve_channels"]
 
@@ -49,8 +49,8 @@ def resolve_channels(instruments) -> list[tuple[str, Any, str]]:
                 spec, band = name, b
         ins = inst_of(spec)
         if band is not None and band != "total" and band not in ins.bands:
-            raise InputError(f"instrument '{ins.name}' has no band '{band}'; its bands: "
-                             f"{', '.join(ins.bands) or 'none (use the whole instrument, band \"total\")'}")
+            have = ", ".join(ins.bands) or 'none (use the whole instrument, band "total")'
+            raise InputError(f"instrument '{ins.name}' has no band '{band}'; its bands: {have}")
         bands = [band] if band is not None else (list(ins.bands) or ["total"])
         out = []
         for b in bands:

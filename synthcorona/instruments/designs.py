@@ -56,12 +56,13 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import astropy.units as u
 import numpy as np
 import scipy.sparse as sp
-import astropy.units as u
 from scipy.special import ndtr
 
-from ..validation import InputError, as_quantity, check_range
+from ..errors import InputError
+from ..validation import as_quantity, check_range
 from . import optics
 from .response import Instrument
 

@@ -34,15 +34,16 @@ import json
 import weakref
 from collections import OrderedDict
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 import xarray as xr
 
-from ..abundances import resolve_abundances
 from ..absorption import ISM_ENERGY_MAX, ISM_ENERGY_MIN, NH_MAX, ism_cross_section, ism_transmission
-from ..synthesis import KEV_TO_ERG, _weights, band_kernel, luminosity, prepare
-from ..spectral import HC_KEV_ANGSTROM
-from ..validation import InputError, as_quantity, check_range
+from ..abundances import resolve_abundances
+from ..constants import HC_KEV_ANGSTROM, KEV_TO_ERG, PARSEC_CM
+from ..errors import InputError
+from ..synthesis import _weights, luminosity, prepare
+from ..validation import as_quantity, check_range
 
 __all__ = [
     "ABSORPTION_MAX_REL_WIDTH", "REFERENCE_DISTANCE", "binned_emissivity", "observed_flux", "band_luminosity",
@@ -53,8 +54,7 @@ __all__ = [
 ABSORPTION_MAX_REL_WIDTH = 1e-3
 #: Reference distance of temperature responses.
 REFERENCE_DISTANCE = 1.0 * u.pc
-_PC_CM = float(REFERENCE_DISTANCE.to_value(u.cm))
-_FOUR_PI_PC2 = 4.0 * np.pi * _PC_CM**2
+_FOUR_PI_PC2 = 4.0 * np.pi * PARSEC_CM**2
 _CACHE_SIZE = 16
 _MATRIX_CACHE: OrderedDict = OrderedDict()
 _LINE_ORDER_CACHE: dict = {}

@@ -17,7 +17,7 @@ Energy range
 ------------
 Every function accepts photon energies in ``[OPTICS_ENERGY_MIN, top of the
 Chantler table]`` (the top is about 0.97 MeV for every element) and raises
-:class:`~synthcorona.validation.InputError` outside it. The lower limit of
+:class:`~synthcorona.errors.InputError` outside it. The lower limit of
 10 eV is our choice: the tables start at 1 eV, but they describe isolated atoms,
 and below ~10 eV the optical response of a solid (band structure, plasmons)
 is not an atomic property any more. Even at 10-100 eV the isolated-atom constants
@@ -40,12 +40,14 @@ from __future__ import annotations
 import functools
 from collections.abc import Mapping, Sequence
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 import xraydb
 
-from ..spectral import to_energy_kev, HC_KEV_ANGSTROM
-from ..validation import InputError, as_quantity, check_range
+from ..constants import HC_KEV_ANGSTROM
+from ..errors import InputError
+from ..spectral import to_energy_kev
+from ..validation import as_quantity, check_range
 
 __all__ = [
     "OPTICS_ENERGY_MIN",

@@ -19,7 +19,7 @@ Formats
   the user's CHIANTI tree, never copied.
 
 Every malformed file raises :class:`InstrumentFileError` (an
-:class:`~synthcorona.validation.InputError`) naming the file and the problem.
+:class:`~synthcorona.errors.InputError`) naming the file and the problem.
 """
 from __future__ import annotations
 
@@ -32,33 +32,26 @@ from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import astropy.units as u
 import numpy as np
 import scipy.sparse as sp
-import astropy.units as u
 from astropy.io import fits
 
-from ..spectral import HC_KEV_ANGSTROM
-from ..validation import InputError, as_quantity
+from ..errors import InputError, InstrumentFileError, InstrumentFileWarning
+from ..settings import CHIANTI_ENV, chianti_path
+from ..validation import as_quantity
 from .response import Instrument
 
 __all__ = [
-    "InstrumentFileError", "InstrumentFileWarning", "AreaData", "RedistributionData",
+    "AreaData", "RedistributionData",
     "read_arf", "read_rmf", "read_area_table", "read_chianti_area", "chianti_area_names",
     "write_arf", "write_rmf", "load_instrument", "file_sha256",
 ]
 
-#: Environment variable naming the CHIANTI root directory.
-CHIANTI_ENV = "SYNTHCORONA_CHIANTI"
 _CHIANTI_AREA_DIR = Path("ancillary_data") / "instrument_responses"
 _REF = "OGIP CAL/GEN/92-002 (George et al. 1992)"
 
 
-class InstrumentFileError(InputError):
-    """An instrument response file is missing, unreadable, truncated or malformed."""
-
-
-class InstrumentFileWarning(UserWarning):
-    """A response file is readable but suspicious (e.g. FITS checksum mismatch)."""
 
 
 def file_sha256(path) -> str:
@@ -765,8 +758,8 @@ def _chianti_dir(chianti_root) -> Path:
     (an ASCII CHIANTI tree, or a .tar.xz of one)."""
     if chianti_root is not None:
         root, source = Path(os.fspath(chianti_root)).expanduser(), "the chianti_root argument"
-    elif os.environ.get(CHIANTI_ENV):
-        root, source = Path(os.environ[CHIANTI_ENV]).expanduser(), f"${CHIANTI_ENV}"
+    elif chianti_path() is not None:
+        root, source = chianti_path(), f"${CHIANTI_ENV}"
     else:
         raise InstrumentFileError(
             f"no CHIANTI installation given: pass chianti_root= or set the environment variable {CHIANTI_ENV} to "

@@ -25,7 +25,7 @@ Band selection is one more linear map (overlap fractions of channels, see
 temperature responses.
 
 Nothing is extrapolated: if the input grid does not cover every energy at which the
-instrument responds, :class:`~synthcorona.validation.InputError` names the missing range.
+instrument responds, :class:`~synthcorona.errors.InputError` names the missing range.
 
 Temperature responses and count rates of DEMs
 ---------------------------------------------
@@ -47,13 +47,15 @@ import json
 import weakref
 from collections import OrderedDict
 
+import astropy.units as u
 import numpy as np
 import scipy.sparse as sp
-import astropy.units as u
 import xarray as xr
 
-from ..spectral import HC_KEV_ANGSTROM, SpectralGrid, to_energy_kev
-from ..validation import InputError, as_quantity, check_finite
+from ..constants import HC_KEV_ANGSTROM
+from ..errors import InputError
+from ..spectral import SpectralGrid, to_energy_kev
+from ..validation import as_quantity, check_finite
 
 __all__ = ["Instrument", "COUNT_RATE_UNIT", "PHOTON_FLUX_UNIT", "TEMPERATURE_RESPONSE_UNIT", "TOTAL_BAND"]
 

@@ -1,6 +1,6 @@
 """Command line: ``synthcorona <subcommand>``.
 
-The subcommands live in :mod:`synthcorona.commands`, one module each (see
+The subcommands live in this package, one module each (see
 ``synthcorona --help`` for the list). Every quantity on the command line or in a scenario file
 carries a unit string parsed by astropy ("10 pc", "1e51 cm-3", "0.1-2.4 keV"). User mistakes end
 with a one-line reason and exit status 2, never a traceback.
@@ -12,19 +12,29 @@ import importlib
 import os
 import sys
 
-__all__ = ["main", "build_parser"]
+__all__ = ["main", "build_parser", "COMMANDS"]
+
+#: Subcommand modules, one each (``NAME``, ``HELP``, ``add_arguments(parser)``, ``run(args) -> int``), in the
+#: order ``--help`` shows them.
+COMMANDS = [
+    "forecast",
+    "spectrum",
+    "cycle",
+    "list_items",
+    "emission",
+    "build_table",
+    "table_info",
+]
 
 
 def build_parser() -> argparse.ArgumentParser:
-    """The argument parser with every subcommand of :data:`synthcorona.commands.COMMANDS`."""
-    from .commands import COMMANDS
-
+    """The argument parser with every subcommand of :data:`COMMANDS`."""
     p = argparse.ArgumentParser(prog="synthcorona",
                                 description="Synthetic coronal X-ray/EUV emission from CHIANTI, instrument "
                                             "responses and CME-dimming forecasts.")
     sub = p.add_subparsers(dest="command", required=True, metavar="<subcommand>")
     for modname in COMMANDS:
-        mod = importlib.import_module(f".commands.{modname}", __package__)
+        mod = importlib.import_module(f".{modname}", __package__)
         sp = sub.add_parser(mod.NAME, help=mod.HELP, description=(mod.__doc__ or mod.HELP).strip(),
                             formatter_class=argparse.RawDescriptionHelpFormatter)
         mod.add_arguments(sp)
@@ -36,10 +46,8 @@ def main(argv=None) -> int:
     """Run ``synthcorona`` with ``argv`` (default: sys.argv); returns the exit status."""
     import astropy.units as u
 
-    from .commands._common import CliError
-    from .validation import InputError
-
-    from .emissivity import TABLE_ENV
+    from ..errors import CliError, InputError
+    from ..settings import TABLE_ENV
 
     args = build_parser().parse_args(argv)
     table = getattr(args, "emissivity_table", None)

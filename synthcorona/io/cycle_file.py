@@ -4,10 +4,10 @@
 ``density``, ``reference_scenario``) and the tables ``[star]``, ``[report]`` (with
 ``[report.bands]``), ``[conversion]``, ``[dimming]`` and ``[[phase]]`` (each with a
 ``[phase.dem]`` table or ``flux`` + ``band`` + ``temperature``), checking every key (type, unit,
-range; unknown keys refused) with :class:`synthcorona.config.Section`. A reference CME scenario
-is read with :func:`synthcorona.scenario_file.read_forecast_file`. Every key, unit and default is
+range; unknown keys refused) with :class:`synthcorona.io.toml.Section`. A reference CME scenario
+is read with :func:`synthcorona.io.forecast_file.read_forecast_file`. Every key, unit and default is
 documented in ``docs/cycle_reference.md``; :meth:`CycleInputs.run` calls
-:func:`synthcorona.cycle.compare_cycle`.
+:func:`synthcorona.products.cycle.compare_cycle`.
 """
 from __future__ import annotations
 
@@ -17,8 +17,8 @@ from typing import Any
 
 import astropy.units as u
 
-from .config import ScenarioError, Section, abundances_from_key, dem_from_section, load_toml
-from .validation import InputError
+from ..errors import InputError, ScenarioError
+from .toml import Section, abundances_from_key, dem_from_section, load_toml
 
 __all__ = ["CycleInputs", "read_cycle_file", "DEFAULT_BANDS", "DEFAULT_REALISATIONS"]
 
@@ -52,8 +52,8 @@ class CycleInputs:
     extra: dict = field(default_factory=dict)
 
     def run(self, n_realisations: int | None = None):
-        """:func:`synthcorona.cycle.compare_cycle` with these inputs (``n_realisations`` overrides the file)."""
-        from .cycle import compare_cycle
+        """:func:`synthcorona.products.cycle.compare_cycle` with these inputs (``n_realisations`` overrides the file)."""
+        from ..products.cycle import compare_cycle
 
         ds = _wrap(self.source, compare_cycle,self.phases, self.star, bands=self.bands, instruments=self.instruments or None,
                            hardness=self.hardness, conversion=self.conversion, reference=self.reference,
@@ -86,7 +86,7 @@ def _phase_value(p: Section):
 
 
 def _phases(root: Section) -> list:
-    from .cycle import CyclePhase
+    from ..products.cycle import CyclePhase
 
     secs = root.sections("phase", required=True)
     if len(secs) < 2:
@@ -125,7 +125,7 @@ def _phases(root: Section) -> list:
 
 def _abs_spec(spec: str, file: str) -> str:
     """An instrument-band spec with a relative response-file path made relative to the cycle file."""
-    from .instruments.designs import list_generic
+    from ..instruments.designs import list_generic
 
     name, sep, band = spec.rpartition(":")
     if not (sep and name and band):
@@ -139,7 +139,7 @@ def _abs_spec(spec: str, file: str) -> str:
 
 
 def _report(root: Section):
-    from .cycle import resolve_channels
+    from ..products.cycle import resolve_channels
 
     r = root.section("report")
     if r is None:
@@ -161,7 +161,7 @@ def _report(root: Section):
 
 
 def _conversion(root: Section):
-    from .cycle import CountConversion, resolve_channels
+    from ..products.cycle import CountConversion, resolve_channels
 
     c = root.section("conversion")
     if c is None:
@@ -185,9 +185,9 @@ def _reference(root: Section):
     if path is None:
         return None, None
     try:
-        from .scenario_file import read_forecast_file
+        from .forecast_file import read_forecast_file
     except ImportError:  # pragma: no cover - the forecast reader ships with the package
-        raise root.error("reference_scenario", "forecast scenario files cannot be read: synthcorona.scenario_file "
+        raise root.error("reference_scenario", "forecast scenario files cannot be read: synthcorona.io.forecast_file "
                                                "is missing from this installation") from None
     return read_forecast_file(path, build=False), str(path)
 
@@ -195,7 +195,7 @@ def _reference(root: Section):
 def read_cycle_file(path_or_text, *, name: str | None = None) -> CycleInputs:
     """Read a cycle file (TOML path or text) into :class:`CycleInputs`; keys in ``docs/cycle_reference.md``.
 
-    Every mistake raises :class:`~synthcorona.config.ScenarioError` naming the file and the key.
+    Every mistake raises :class:`~synthcorona.errors.ScenarioError` naming the file and the key.
     """
     root = load_toml(path_or_text, name=name)
     is_file = root.file != "<string>" and pathlib.Path(root.file).is_file()
@@ -207,7 +207,7 @@ def read_cycle_file(path_or_text, *, name: str | None = None) -> CycleInputs:
     else:
         abundances = reference.corona.abundances
     density = root.quantity("density", u.cm ** -3, default=None, lo=1e6, hi=1e13)
-    from .scenario_file import read_star
+    from .forecast_file import read_star
 
     star, star_name = read_star(root)
     phases = _phases(root)
@@ -215,7 +215,7 @@ def read_cycle_file(path_or_text, *, name: str | None = None) -> CycleInputs:
         raise root.error("period", "applies to phases given as times (\"3 yr\"); these phases are cycle fractions")
     bands, instruments, hardness = _report(root)
     if hardness is not None:
-        from .cycle import _hardness_pairs, resolve_channels
+        from ..products.cycle import _hardness_pairs, resolve_channels
 
         labels = [c[0] for c in resolve_channels(instruments)] if instruments else []
         _wrap(f"{root.file}: [report] hardness", _hardness_pairs, hardness, labels)

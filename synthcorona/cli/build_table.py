@@ -1,9 +1,7 @@
 """``synthcorona build-table``: build an emissivity table from a CHIANTI copy."""
 from __future__ import annotations
 
-
 import numpy as np
-
 
 NAME = "build-table"
 HELP = "build an emissivity table from a CHIANTI copy"

@@ -1,4 +1,4 @@
-"""Figures of an activity-cycle comparison (:func:`synthcorona.cycle.compare_cycle`) against phase.
+"""Figures of an activity-cycle comparison (:func:`synthcorona.products.cycle.compare_cycle`) against phase.
 
 Each function takes the comparison Dataset and returns a matplotlib ``Figure`` (no pyplot state
 is kept); :func:`save_cycle_figures` writes every applicable figure as PNG. Needs matplotlib; use
@@ -10,6 +10,8 @@ import pathlib
 
 import numpy as np
 import xarray as xr
+
+from ..constants import PARSEC_CM
 
 __all__ = ["plot_cycle_fluxes", "plot_cycle_count_rates", "plot_cycle_hardness", "plot_cycle_conversion",
            "plot_cycle_dimming", "save_cycle_figures"]
@@ -57,7 +59,7 @@ def plot_cycle_fluxes(ds: xr.Dataset):
     ax.set_ylabel(f"flux [{ds['flux'].attrs['units']}]")
     _phase_axis(ax, ds)
     ax.legend(fontsize=8)
-    d_cm = ds.attrs["star_distance_pc"] * 3.0856775814913673e18
+    d_cm = ds.attrs["star_distance_pc"] * PARSEC_CM
     sec = ax.secondary_yaxis("right", functions=(lambda f: f * 4 * np.pi * d_cm ** 2,
                                                   lambda L: L / (4 * np.pi * d_cm ** 2)))
     sec.set_ylabel("luminosity [erg / s]")

@@ -11,7 +11,8 @@ from __future__ import annotations
 import io
 import pathlib
 
-from ._common import CliError, add_table_option
+from ..errors import CliError
+from .common import add_table_option
 
 NAME = "forecast"
 HELP = "CME-dimming forecast of a scenario file: depths, durations, P(detect), minimum detectable mass, report"
@@ -38,8 +39,8 @@ def _figures(ds, sc) -> dict:
     import numpy as np
     import xarray as xr
 
-    from ..dimming.plotting import plot_detection_vs_mass, plot_light_curves
-    from ..instruments.plotting import plot_temperature_responses
+    from ..plotting.dimming import plot_detection_vs_mass, plot_light_curves
+    from ..plotting.instruments import plot_temperature_responses
 
     figs = {}
     lc = xr.Dataset({k: ds[k] for k in ("expected", "expected_without_cme", "background") if k in ds},
@@ -157,9 +158,9 @@ def run(args) -> int:
                        "probability (1000 for 0.01)")
     if args.seed is not None and args.seed < 0:
         raise CliError(f"--seed={args.seed}: give a non-negative integer")
-    from ..forecast import run_forecast
-    from ..report import forecast_report
-    from ..scenario_file import read_forecast_file
+    from ..io.forecast_file import read_forecast_file
+    from ..io.report import forecast_report
+    from ..products.forecast import run_forecast
 
     inputs = read_forecast_file(args.scenario)
     with warnings.catch_warnings():

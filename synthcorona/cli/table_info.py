@@ -1,7 +1,6 @@
 """``synthcorona table-info``: print the provenance of an emissivity table."""
 from __future__ import annotations
 
-
 NAME = "table-info"
 HELP = "print the provenance of an emissivity table"
 

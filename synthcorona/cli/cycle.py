@@ -14,7 +14,8 @@ from __future__ import annotations
 
 import pathlib
 
-from ._common import CliError, add_table_option
+from ..errors import CliError
+from .common import add_table_option
 
 NAME = "cycle"
 HELP = "compare fluxes, count rates, hardness and dimming detectability across an activity cycle"
@@ -52,8 +53,8 @@ def run(args) -> int:
 
     import numpy as np
 
-    from ..cycle import cycle_tables
-    from ..cycle_file import read_cycle_file
+    from ..io.cycle_file import read_cycle_file
+    from ..products.cycle import cycle_tables
 
     if args.realisations is not None and args.realisations < 1:
         raise CliError(f"--realisations={args.realisations}: give a count >= 1")
@@ -78,7 +79,7 @@ def run(args) -> int:
         import matplotlib
 
         matplotlib.use("Agg")
-        from ..cycle_plotting import save_cycle_figures
+        from ..plotting.cycle import save_cycle_figures
 
         written += [p.name for p in save_cycle_figures(ds, out)]
 

@@ -1,11 +1,10 @@
 """Helpers shared by the subcommands: unit-string parsing and the user-mistake exception."""
 from __future__ import annotations
 
-__all__ = ["CliError", "parse_quantity", "parse_band", "add_table_option"]
+from ..errors import CliError
 
+__all__ = ["parse_quantity", "parse_band", "add_table_option"]
 
-class CliError(Exception):
-    """A user mistake on the command line (printed as one line, exit status 2)."""
 
 
 def parse_quantity(text: str, unit: str, what: str):

@@ -22,16 +22,13 @@ from typing import Any
 import astropy.units as u
 import numpy as np
 
-from .validation import InputError
+from ..errors import InputError, ScenarioError
 
-__all__ = ["ScenarioError", "Section", "load_toml", "dem_from_section", "abundances_from_key",
+__all__ = ["Section", "load_toml", "dem_from_section", "abundances_from_key",
            "DEM_MODELS"]
 
 _MISSING = object()
 
-
-class ScenarioError(InputError):
-    """A mistake in an input file; the message names the file and the key."""
 
 
 def _ustr(unit) -> str:
@@ -312,7 +309,7 @@ def dem_from_section(sec: Section, *, em_unit="cm-3"):
     (``"2 MK"``), ``emission_measure`` in ``em_unit`` (volume cm-3 by default, column cm-5),
     ``width_dex`` and ``slope`` plain numbers.
     """
-    from . import dem as demmod
+    from .. import dem as demmod
 
     em_unit = u.Unit(em_unit)
     model = sec.string("model", required=True, choices=tuple(DEM_MODELS))
@@ -375,7 +372,7 @@ def abundances_from_key(sec: Section, key: str = "abundances", default: str = "c
     ``metallicity`` every element heavier than He (linear factor 10**[M/H]). Returns an
     :class:`~synthcorona.abundances.AbundanceSet`.
     """
-    from .abundances import available_sets, fip_bias, resolve_abundances, scale_metallicity
+    from ..abundances import available_sets, fip_bias, resolve_abundances, scale_metallicity
 
     known = f"known sets: {', '.join(available_sets())}"
     if isinstance(sec.data.get(key), dict):

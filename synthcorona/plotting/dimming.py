@@ -7,7 +7,7 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
-from ..validation import InputError
+from ..errors import InputError
 
 __all__ = ["plot_light_curves", "plot_detection_vs_mass", "plot_min_mass_vs_distance"]
 

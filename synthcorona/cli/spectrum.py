@@ -12,7 +12,8 @@ from __future__ import annotations
 import json
 import pathlib
 
-from ._common import CliError, add_table_option
+from ..errors import CliError
+from .common import add_table_option
 
 NAME = "spectrum"
 HELP = "spectrum, band fluxes, luminosities and instrument count rates of a scenario file's corona"
@@ -93,7 +94,7 @@ def run(args) -> int:
     import astropy.units as u
     import numpy as np
 
-    from ..scenario_file import read_forecast_file
+    from ..io.forecast_file import read_forecast_file
 
     inputs = read_forecast_file(args.scenario, build=False)
     fluxes, rates, spec, meta = compute(inputs)

@@ -7,13 +7,14 @@ CI). Axis labels carry units.
 """
 from __future__ import annotations
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 import xarray as xr
 
-from ..spectral import HC_KEV_ANGSTROM, grid_edges
-from ..validation import InputError
-from .response import Instrument
+from ..constants import HC_KEV_ANGSTROM
+from ..errors import InputError
+from ..instruments.response import Instrument
+from ..spectral import grid_edges
 
 __all__ = ["plot_effective_area", "plot_temperature_responses", "plot_folded_spectrum"]
 

@@ -46,7 +46,7 @@ def _abundances() -> list[str]:
 
 
 def _dems() -> list[str]:
-    from ..config import DEM_MODELS
+    from ..io.toml import DEM_MODELS
 
     return ["DEM models (model = \"...\" in a [...dem] table; keys it reads):"] + \
         [f"  {k}: {v}" for k, v in DEM_MODELS.items()]

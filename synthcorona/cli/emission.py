@@ -6,7 +6,7 @@ import pathlib
 
 import numpy as np
 
-from ._common import parse_band, parse_quantity
+from .common import parse_band, parse_quantity
 
 NAME = "emission"
 HELP = "spectrum and band fluxes of a DEM (Gaussian in log T or isothermal)"

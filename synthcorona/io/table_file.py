@@ -20,9 +20,9 @@ import pathlib
 import numpy as np
 import xarray as xr
 
-from .validation import InputError
+from ..errors import TableFileError
 
-__all__ = ["TableFileError", "PACKED_VARS", "write_table", "read_table", "content_hash"]
+__all__ = ["PACKED_VARS", "write_table", "read_table", "content_hash"]
 
 #: Variables stored as packed log10 integers.
 PACKED_VARS = ("line_emissivity", "cont_ff", "cont_fb", "cont_2p")
@@ -32,9 +32,6 @@ QMAX = 32767
 RELATIVE_FLOOR = 1e-40
 FORMAT_VERSION = "synthcorona-emissivity-1"
 
-
-class TableFileError(InputError):
-    """An emissivity table file is missing, corrupted, or not a synthcorona table."""
 
 
 def _pack(values: np.ndarray) -> tuple[np.ndarray, float, float, float]:

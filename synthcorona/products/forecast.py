@@ -31,7 +31,7 @@ import astropy.units as u
 import numpy as np
 import xarray as xr
 
-from .validation import InputError
+from ..errors import InputError
 
 __all__ = ["run_forecast", "table_provenance", "fwhm_duration"]
 
@@ -53,7 +53,7 @@ def table_provenance(table=None) -> dict:
     (the ions whose level-resolved files come from older CHIANTI releases) and
     ``chianti_substituted_ion_count``.
     """
-    from .emissivity import load_emissivity
+    from ..emissivity import load_emissivity
 
     t = table if table is not None else load_emissivity()
     prov = t.provenance
@@ -96,7 +96,7 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
     Parameters
     ----------
     inputs : ForecastInputs
-        From :func:`synthcorona.scenario_file.read_forecast_file` (with its scenario built).
+        From :func:`synthcorona.io.forecast_file.read_forecast_file` (with its scenario built).
     realisations, seed : int, optional
         Override the file's ``[montecarlo]`` values (Monte Carlo realisations per probability;
         integer seed of every random draw).
@@ -267,6 +267,6 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
 
 
 def _version() -> str:
-    from . import __version__
+    from .. import __version__
 
     return __version__

@@ -3,7 +3,7 @@
 :func:`read_forecast_file` reads the tables ``[scenario]``, ``[star]``, ``[corona]`` (with
 ``[corona.dem]``), ``[cme]``, ``[flare]`` (optional), ``[[instrument]]`` (one or more),
 ``[observation]``, ``[montecarlo]`` and ``[output]`` (optional), checks every key (type, unit,
-range; unknown keys refused) with :class:`synthcorona.config.Section`, and builds the
+range; unknown keys refused) with :class:`synthcorona.io.toml.Section`, and builds the
 :class:`~synthcorona.dimming.scenario.DimmingScenario` of the forecast. Every key, unit,
 default and valid range is documented in ``docs/scenario_reference.md``.
 
@@ -25,8 +25,8 @@ from typing import Any
 import astropy.units as u
 import numpy as np
 
-from .config import ScenarioError, Section, abundances_from_key, dem_from_section, load_toml
-from .validation import InputError
+from ..errors import InputError, ScenarioError
+from .toml import Section, abundances_from_key, dem_from_section, load_toml
 
 __all__ = ["ForecastInputs", "MonteCarlo", "InstrumentEntry", "read_forecast_file", "flare_energy_from_class",
            "FLARE_CLASS_FLUX", "STATISTICS"]
@@ -116,7 +116,7 @@ class ForecastInputs:
 
     def build_scenario(self, **changes):
         """A new :class:`DimmingScenario` from these inputs with fields replaced (``star=``, ``corona=``, ...)."""
-        from .dimming.scenario import DimmingScenario
+        from ..dimming.scenario import DimmingScenario
 
         kw = dict(star=self.star, corona=self.corona, cme=self.cme, flare=self.flare, instrument=self.instrument,
                   observation=self.observation, recovery=self.recovery, upflow_fraction=self.upflow_fraction)
@@ -152,7 +152,7 @@ def read_star(root: Section):
     """The ``[star]`` table (distance, nh, radius, name) -> (:class:`~synthcorona.dimming.scenario.Star`, name).
 
     Shared by forecast scenario files and activity-cycle files."""
-    from .dimming.scenario import Star
+    from ..dimming.scenario import Star
 
     s = root.section("star", required=True)
     name = s.string("name", default=None)
@@ -164,7 +164,7 @@ def read_star(root: Section):
 
 
 def _corona(root: Section):
-    from .dimming.scenario import Corona
+    from ..dimming.scenario import Corona
 
     c = root.section("corona", required=True)
     abund = abundances_from_key(c, "abundances", default="coronal")
@@ -177,7 +177,7 @@ def _corona(root: Section):
 
 
 def _cme(root: Section):
-    from .dimming.scenario import CME
+    from ..dimming.scenario import CME
 
     c = root.section("cme", required=True)
     kw = dict(
@@ -209,7 +209,7 @@ def _cme(root: Section):
 
 
 def _flare(root: Section):
-    from .dimming.scenario import Flare
+    from ..dimming.scenario import Flare
 
     f = root.section("flare", required=False)
     if f is None:
@@ -300,8 +300,8 @@ def _detector(d: Section):
 
 def _instrument(s: Section):
     """One ``[[instrument]]`` table -> (Instrument, band names, description of the source)."""
-    from .instruments.designs import build_instrument, list_generic, load_generic
-    from .instruments.readers import load_instrument
+    from ..instruments.designs import build_instrument, list_generic, load_generic
+    from ..instruments.readers import load_instrument
 
     kinds = [k for k in ("generic", "arf", "table", "design") if s.has(k)]
     if len(kinds) != 1:
@@ -339,7 +339,7 @@ def _instrument(s: Section):
             raise d.error("energy_max", f"must be above energy_min = {emin:g}")
         desc = d.string("description", default="")
         d.finish()
-        from .instruments.designs import default_design_grid
+        from ..instruments.designs import default_design_grid
 
         grid = default_design_grid(emin, emax, step)
         inst = _wrap(d, None, build_instrument, mirror=mirror, filters=filters, detector=det, geometric_area=area,
@@ -369,7 +369,7 @@ def _instrument(s: Section):
 
 
 def _observation(root: Section, labels):
-    from .dimming.scenario import Observation
+    from ..dimming.scenario import Observation
 
     o = root.section("observation", required=True)
     exposure = o.quantity("exposure", u.s, required=True, lo=0.0, lo_inclusive=False, hi=1e9)
@@ -477,7 +477,7 @@ def read_forecast_file(path_or_text, *, name: str | None = None, build: bool = T
     mc, grid, target = _montecarlo(root, cme.mass, observation.false_alarm)
     output = _output(root)
     root.finish()
-    from .dimming.scenario import DimmingScenario
+    from ..dimming.scenario import DimmingScenario
 
     scenario = None
     if build:

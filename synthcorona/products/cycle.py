@@ -33,7 +33,7 @@ activity cycle in one of three ways:
   fixed seed (common random numbers across phases) and, on request, the minimum detectable mass.
 
 The result is an :class:`xarray.Dataset` with a ``phase`` dimension; :func:`cycle_tables` turns it
-into astropy tables (ECSV/CSV), :mod:`synthcorona.cycle_plotting` into figures.
+into astropy tables (ECSV/CSV), :mod:`synthcorona.plotting.cycle` into figures.
 """
 from __future__ import annotations
 
@@ -42,12 +42,13 @@ import math
 from dataclasses import dataclass
 from typing import Any, NamedTuple, Sequence
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 import xarray as xr
 
-from .dem import DEM, GaussianDEM, IsothermalDEM, MultiComponentDEM
-from .validation import InputError, as_quantity, as_scalar, check_range
+from ..dem import DEM, GaussianDEM, IsothermalDEM, MultiComponentDEM
+from ..errors import InputError
+from ..validation import as_quantity, as_scalar, check_range
 
 __all__ = ["CyclePhase", "CountConversion", "ConversionResult", "solve_emission_measure",
            "convert_count_rate", "compare_cycle", "cycle_tables", "FLUX_UNIT", "PHASE_SOURCES"]
@@ -214,7 +215,7 @@ def solve_emission_measure(flux, band, temperature, distance, width_dex=None, ab
     -------
     IsothermalDEM or GaussianDEM with the solved ``total_em`` (cm-3).
     """
-    from .synthesis import band_flux
+    from ..synthesis import band_flux
 
     f = as_scalar("flux", flux, FLUX_UNIT, lo=0.0, unit_label="erg s-1 cm-2", inclusive=False)
     band = _band_pair("band", band)
@@ -229,7 +230,7 @@ def solve_emission_measure(flux, band, temperature, distance, width_dex=None, ab
 
 
 # ----------------------------------------------------------------------------- instruments
-from .instruments.channels import resolve_channels  # noqa: E402  (re-exported: part of this module's API)
+from ..instruments.channels import resolve_channels  # noqa: E402  (re-exported: part of this module's API)
 
 
 def _one_channel(name: str, spec):
@@ -274,7 +275,7 @@ class ConversionResult(NamedTuple):
 
 
 def _c2f(channel, dem, flux_band, nh, absorbed, abundances, density, table) -> float:
-    from .instruments.observables import counts_to_flux
+    from ..instruments.observables import counts_to_flux
 
     _, ins, band = channel
     c = counts_to_flux(ins, band=band, flux_band=flux_band, nh=nh, absorbed=absorbed, dem=dem, table=table,
@@ -367,19 +368,19 @@ def _hardness_pairs(hardness, labels: list[str]) -> list[tuple[str, str]]:
 
 def _reference_scenario(reference):
     """A DimmingScenario, or forecast-file inputs (anything with ``build_scenario`` and ``corona``)."""
-    from .dimming.scenario import DimmingScenario
+    from ..dimming.scenario import DimmingScenario
 
     if isinstance(reference, DimmingScenario) or (hasattr(reference, "build_scenario")
                                                   and hasattr(reference, "corona")):
         return reference
     raise InputError(f"reference={reference!r} must be a DimmingScenario or forecast-file inputs "
-                     "(synthcorona.scenario_file.read_forecast_file)")
+                     "(synthcorona.io.forecast_file.read_forecast_file)")
 
 
 def _phase_scenario(ref, dem: DEM, star):
     """The reference scenario with the corona's DEM swapped for ``dem`` (``dataclasses.replace``) and the
     cycle's star."""
-    from .dimming.scenario import DimmingScenario
+    from ..dimming.scenario import DimmingScenario
 
     corona = dataclasses.replace(ref.corona, dem=dem)
     if not isinstance(ref, DimmingScenario):          # forecast-file inputs
@@ -391,7 +392,7 @@ def _phase_scenario(ref, dem: DEM, star):
 def _phase_observables(i, d, bdict, channels, dist, nh, table, abundances, density, x, flux, lum, rates,
                        total_em, mean_logT):
     """Fill row ``i`` of the flux, luminosity, count-rate, EM and mean-log T arrays for DEM ``d`` (in place)."""
-    from .synthesis import band_flux, luminosity
+    from ..synthesis import band_flux, luminosity
 
     flux[i] = band_flux(d, bdict, dist, table=table, abundances=abundances, density=density).to_value(FLUX_UNIT)
     lum[i] = luminosity(d, bdict, table=table, abundances=abundances, density=density).to_value(u.erg / u.s)
@@ -426,7 +427,7 @@ def compare_cycle(phases: Sequence[CyclePhase], star, *, bands=None, instruments
         Counts-to-flux conversion to report per phase.
     reference : :class:`~synthcorona.dimming.DimmingScenario` or forecast-file inputs, optional
         Reference CME scenario whose detectability is followed across the cycle (the result of
-        :func:`synthcorona.scenario_file.read_forecast_file` is accepted too).
+        :func:`synthcorona.io.forecast_file.read_forecast_file` is accepted too).
     n_realisations : int
         Monte Carlo realisations of the detection probability (``false_alarm * n >= 10``).
     seed : int
@@ -447,10 +448,10 @@ def compare_cycle(phases: Sequence[CyclePhase], star, *, bands=None, instruments
         pairs) and ``dimming_band``; units in each variable's attrs; provenance (table CHIANTI version
         and content hash, abundances, star, method) in ``attrs``.
     """
-    from . import __version__
-    from .dimming.scenario import Star
-    from .emissivity import load_emissivity
-    from .synthesis import prepare
+    from .. import __version__
+    from ..dimming.scenario import Star
+    from ..emissivity import load_emissivity
+    from ..synthesis import prepare
 
     phases = list(phases)
     if len(phases) < 2:
@@ -586,7 +587,7 @@ def compare_cycle(phases: Sequence[CyclePhase], star, *, bands=None, instruments
         "synthcorona_version": __version__,
         "method": ("per phase: DEM -> band fluxes (unabsorbed) and luminosities (synthcorona.synthesis), count "
                    "rates with ISM absorption (Instrument.count_rate); amplitude = max/min over the phases; "
-                   "flux phases: EM solved exactly from the linear band flux (synthcorona.cycle)"),
+                   "flux phases: EM solved exactly from the linear band flux (synthcorona.products.cycle)"),
         "hardness_definition": "HR = (H - S)/(H + S) and ratio H/S of count rates (Park et al. 2006, ApJ 652, 610)",
     }
     if period is not None:

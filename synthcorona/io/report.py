@@ -1,7 +1,7 @@
 """One-page forecast report in Markdown or self-contained HTML, for pasting into a proposal.
 
-:func:`forecast_report` renders the Dataset of :func:`synthcorona.forecast.run_forecast` and the
-scenario's :class:`~synthcorona.scenario_file.ForecastInputs`: inputs, the depth / duration /
+:func:`forecast_report` renders the Dataset of :func:`synthcorona.products.forecast.run_forecast` and the
+scenario's :class:`~synthcorona.io.forecast_file.ForecastInputs`: inputs, the depth / duration /
 flare-contamination table per band, detection probability, minimum detectable mass, figures,
 "Assumptions and limitations" (from the method descriptions of
 :mod:`synthcorona.dimming.scenario` and ``docs/dimming.md``) and the atomic-data provenance.
@@ -240,7 +240,7 @@ def forecast_report(ds, inputs, figures=None, fmt: str = "md") -> str:
     Parameters
     ----------
     ds : xarray.Dataset
-        From :func:`synthcorona.forecast.run_forecast`.
+        From :func:`synthcorona.products.forecast.run_forecast`.
     inputs : ForecastInputs
         The scenario it was computed from.
     figures : dict, optional
@@ -248,7 +248,7 @@ def forecast_report(ds, inputs, figures=None, fmt: str = "md") -> str:
         bytes as base64.
     fmt : {"md", "html"}
     """
-    from .validation import InputError
+    from ..errors import InputError
 
     if fmt not in ("md", "html"):
         raise InputError(f"fmt={fmt!r} must be 'md' or 'html'")

@@ -1,0 +1,81 @@
+"""Every exception and warning class of synthcorona, in one place.
+
+Errors carry the facts they report as attributes (the argument, the value, the valid range, the
+file and key), so that callers decide what to do from fields, never from the message text.
+
+* :class:`InputError` -- a user-supplied value is invalid (a ``ValueError``).
+* :class:`ScenarioError` -- a mistake in an input file (TOML); names the file and the key.
+* :class:`TableFileError` -- an emissivity table file is missing, corrupted or foreign.
+* :class:`ChiantiNotFoundError` -- no usable CHIANTI database was found.
+* :class:`InstrumentFileError` / :class:`InstrumentFileWarning` -- instrument response files.
+* :class:`BracketError` -- a root search was given a bracket that does not straddle the target.
+* :class:`CliError` -- a user mistake on the command line (one line, exit status 2).
+"""
+from __future__ import annotations
+
+__all__ = ["InputError", "ScenarioError", "TableFileError", "ChiantiNotFoundError", "InstrumentFileError",
+           "InstrumentFileWarning", "BracketError", "CliError"]
+
+
+class InputError(ValueError):
+    """A user-supplied value is out of range, non-finite or otherwise invalid.
+
+    Parameters
+    ----------
+    message : str
+        The complete, human-readable message (names the argument, the value and the valid range).
+    argument : str, optional
+        Name of the offending argument (e.g. ``"mass"``), when known.
+    """
+
+    def __init__(self, message: str = "", *, argument: str | None = None):
+        super().__init__(message)
+        self.argument = argument
+
+
+class ScenarioError(InputError):
+    """A mistake in an input file; the message names the file and the key."""
+
+
+class TableFileError(InputError):
+    """An emissivity table file is missing, corrupted, or not a synthcorona table."""
+
+
+class ChiantiNotFoundError(InputError):
+    """No usable CHIANTI database was found; the message says where we looked and how to fix it."""
+
+
+class InstrumentFileError(InputError):
+    """An instrument response file is missing, unreadable, truncated or malformed."""
+
+
+class InstrumentFileWarning(UserWarning):
+    """A response file is readable but suspicious (e.g. FITS checksum mismatch)."""
+
+
+class BracketError(InputError):
+    """A root search's bracket does not straddle the target.
+
+    Attributes
+    ----------
+    bracket : tuple of float
+        The two ends of the bracket (in the unit of ``unit``).
+    values : tuple of float
+        The function's values at the two ends (e.g. P(detect) at the two masses).
+    target : float
+        The value sought.
+    unit : str
+        Unit of ``bracket``.
+    """
+
+    def __init__(self, message: str, *, bracket=(float("nan"), float("nan")), values=(float("nan"), float("nan")),
+                 target: float = float("nan"), unit: str = "", argument: str | None = "bracket"):
+        super().__init__(message, argument=argument)
+        self.bracket = tuple(float(b) for b in bracket)
+        self.values = tuple(float(v) for v in values)
+        self.target = float(target)
+        self.unit = unit
+
+
+class CliError(Exception):
+    """A user mistake on the command line (printed as one line, exit status 2)."""
