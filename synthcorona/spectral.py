@@ -3,7 +3,7 @@
 Every band or grid argument in synthcorona may be given in wavelength
 (any length unit) or photon energy (any energy unit); internally everything is
 photon energy in keV. ``E [keV] = 12.398419843320026 / lambda [Angstrom]``
-(CODATA 2018 value of hc, via astropy.constants).
+(CODATA 2018 value of hc, :data:`synthcorona.constants.HC_KEV_ANGSTROM`).
 """
 from __future__ import annotations
 
@@ -13,7 +13,6 @@ from dataclasses import dataclass
 import astropy.units as u
 import numpy as np
 
-from .constants import HC_KEV_ANGSTROM
 from .errors import InputError
 from .validation import check_finite
 
