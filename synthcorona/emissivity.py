@@ -21,7 +21,7 @@ from .errors import InputError, TableFileError
 from .io.table_file import read_table
 from .validation import as_quantity, check_finite
 
-__all__ = ["EmissivityTable", "load_emissivity", "DEFAULT_TABLE_NAME"]
+__all__ = ["EmissivityTable", "load_emissivity", "resolve_table", "DEFAULT_TABLE_NAME"]
 
 DEFAULT_TABLE_NAME = "emissivity_default.nc"
 _GRID_TOL = 1e-9
@@ -123,6 +123,12 @@ class EmissivityTable:
     def density(self) -> u.Quantity:
         """Table electron densities [cm^-3]."""
         return (10 ** self.log_density) * u.cm ** -3
+
+    @property
+    def content_hash(self) -> str:
+        """SHA-256 of the table's content (its ``content_hash`` provenance attribute): the key of every cache
+        that depends on the table. A table without one (built in memory) is keyed on its identity."""
+        return str(self.provenance.get("content_hash") or f"in-memory-{id(self)}")
 
     def provenance_attrs(self) -> dict:
         """Short provenance dict for the attrs of results computed from this table."""
@@ -311,3 +317,13 @@ def load_emissivity(path=None) -> EmissivityTable:
         if not table.provenance.get(key):
             raise TableFileError(f"emissivity table {p} has no '{key}' provenance attribute")
     return table
+
+
+def resolve_table(table=None, name: str = "table") -> EmissivityTable:
+    """The emissivity table of a computation: ``table`` itself if it is an :class:`EmissivityTable`, the file
+    it names if it is a path, else (None) the default of :func:`load_emissivity`."""
+    if isinstance(table, EmissivityTable):
+        return table
+    if table is None or isinstance(table, (str, pathlib.PurePath)):
+        return load_emissivity(table)
+    raise InputError(f"{name}={table!r} is neither an EmissivityTable nor the path of a table file", argument=name)

@@ -32,21 +32,29 @@ from .abundances import resolve_abundances
 from .constants import HC_KEV_ANGSTROM, KEV_TO_ERG
 from .emissivity import EmissivityTable, load_emissivity
 from .errors import InputError
-from .spectral import SpectralGrid, band_to_energy
+from .spectral import Band, SpectralGrid
 from .validation import as_quantity, check_finite
 
 __all__ = ["synthesize", "band_flux", "luminosity", "radiative_loss", "band_kernel", "emissivity_matrix",
-           "prepare"]
+           "prepare", "PreparedTable", "dem_weights", "band_list"]
 
 _FOUR_PI = 4.0 * np.pi
 _FWHM_TO_SIGMA = 1.0 / (2.0 * np.sqrt(2.0 * np.log(2.0)))
 
 
-class _Prepared:
-    """Abundance- and density-resolved kernels of one table, reused by every call with the same inputs."""
+class PreparedTable:
+    """Abundance- and density-resolved kernels of one table, reused by every call with the same inputs.
 
-    def __init__(self, table: EmissivityTable, abundances, density=None, pressure=None):
+    Built by :func:`prepare` (which caches it). Attributes: ``table`` (the :class:`EmissivityTable`),
+    ``abund`` (resolved abundances), ``log_n`` (log10 n_e per temperature node), ``line_power``
+    (L, T) erg cm3 s-1 per line, ``line_energy_kev``, ``cont`` (T, E) continuum erg cm3 s-1 keV-1 and
+    its cumulative integrals ``cont_cum`` / ``cont_ph_cum`` (energy / photons), ``valid_T`` and
+    ``key``: a hashable identity (table content hash, abundances, density or pressure) for caches.
+    """
+
+    def __init__(self, table: EmissivityTable, abundances, density=None, pressure=None, key=None):
         self.table = table
+        self.key = key
         self.abund = resolve_abundances(abundances, elements=table.elements)
         self.log_n, self.density_label = table.density_profile(density, pressure)
         a_el = self.abund.as_array(table.elements)
@@ -142,7 +150,7 @@ class _Prepared:
 _PREP_CACHE: dict = {}
 
 
-def prepare(table=None, abundances="coronal", density=None, pressure=None) -> _Prepared:
+def prepare(table=None, abundances="coronal", density=None, pressure=None) -> PreparedTable:
     """Abundance- and density-resolved kernels (cached per table, abundances, density/pressure)."""
     table = table if table is not None else load_emissivity()
     if not isinstance(table, EmissivityTable):
@@ -150,17 +158,22 @@ def prepare(table=None, abundances="coronal", density=None, pressure=None) -> _P
     abund = resolve_abundances(abundances, elements=table.elements)
     dkey = None if density is None else (float(as_quantity("density", density, u.cm ** -3).value),)
     pkey = None if pressure is None else (float(as_quantity("pressure", pressure, u.K * u.cm ** -3).value),)
-    key = (id(table), tuple(sorted(abund.values.items())), dkey, pkey)
+    key = (table.content_hash, tuple(sorted(abund.values.items())), dkey, pkey)
     hit = _PREP_CACHE.get(key)
-    if hit is None or hit.table is not table:
+    if hit is None:
         if len(_PREP_CACHE) > 16:
             _PREP_CACHE.clear()
-        hit = _Prepared(table, abund, density=density, pressure=pressure)
+        hit = PreparedTable(table, abund, density=density, pressure=pressure, key=key)
         _PREP_CACHE[key] = hit
     return hit
 
 
-def _weights(dem, prep: _Prepared) -> tuple[np.ndarray, u.UnitBase]:
+def dem_weights(dem, prep: PreparedTable) -> tuple[np.ndarray, u.UnitBase]:
+    """EM per node of the prepared table's log T grid (plain floats) and its unit (cm-3 or cm-5).
+
+    Refuses a DEM with emission measure where the table has no emissivity (see
+    :meth:`PreparedTable.check_dem_weights`).
+    """
     from .dem import DEM
 
     if not isinstance(dem, DEM):
@@ -187,7 +200,7 @@ def _output_scale(em_unit, distance):
     return 1.0 / (_FOUR_PI * d.value ** 2), u.cm ** -2, "flux"
 
 
-def band_kernel(bands_kev: np.ndarray, prep: _Prepared, photons: bool = False) -> np.ndarray:
+def band_kernel(bands_kev: np.ndarray, prep: PreparedTable, photons: bool = False) -> np.ndarray:
     """Band emissivity kernels K_b(T) = Σ_lines in band + ∫_band continuum dE.
 
     Parameters
@@ -208,7 +221,7 @@ def band_kernel(bands_kev: np.ndarray, prep: _Prepared, photons: bool = False) -
     return k_lines + k_cont
 
 
-def emissivity_matrix(energy_edges_kev: np.ndarray, prep: _Prepared, photons: bool = True) -> np.ndarray:
+def emissivity_matrix(energy_edges_kev: np.ndarray, prep: PreparedTable, photons: bool = True) -> np.ndarray:
     """Emissivity per unit EM in each bin of an energy grid, shape (n_T, n_bins).
 
     ``energy_edges_kev`` are n+1 ascending bin edges (keV). Lines fall in the bin holding
@@ -228,25 +241,27 @@ def emissivity_matrix(energy_edges_kev: np.ndarray, prep: _Prepared, photons: bo
     return out
 
 
-def _band_list(band) -> tuple[np.ndarray, list]:
-    """Parse one band (2-element Quantity) or a sequence/dict of bands into (n_b, 2) keV and labels."""
+def band_list(band) -> tuple[np.ndarray, list]:
+    """One band (a :class:`~synthcorona.spectral.Band`, a text or a (2,) Quantity), a (n, 2) Quantity, a
+    list of bands, or a dict of label -> band, as an (n_b, 2) array of keV limits and the labels."""
     if isinstance(band, dict):
-        labels = list(band)
-        arr = np.array([band_to_energy(f"band[{k!r}]", v) for k, v in band.items()])
-        return arr, labels
-    if isinstance(band, u.Quantity) and band.ndim == 1:
-        lo, hi = band_to_energy("band", band)
-        return np.array([[lo, hi]]), [f"{band[0].value:g}-{band[1].value:g} {band.unit}"]
-    if isinstance(band, u.Quantity) and band.ndim == 2:
-        arr = np.array([band_to_energy(f"band[{i}]", b) for i, b in enumerate(band)])
-        return arr, [f"{b[0].value:g}-{b[1].value:g} {band.unit}" for b in band]
-    raise InputError(f"band={band!r}: give two wavelengths or energies as a Quantity, e.g. (0.1, 2.4) * u.keV")
+        bands = [Band.coerce(v, f"band[{k!r}]", label=str(k)) for k, v in band.items()]
+    elif isinstance(band, (Band, str)) or (isinstance(band, u.Quantity) and band.ndim == 1):
+        bands = [Band.coerce(band, "band")]
+    elif isinstance(band, u.Quantity) and band.ndim == 2:
+        bands = [Band.coerce(b, f"band[{i}]") for i, b in enumerate(band)]
+    elif isinstance(band, (list, tuple)) and band and all(isinstance(b, (Band, str)) for b in band):
+        bands = [Band.coerce(b, f"band[{i}]") for i, b in enumerate(band)]
+    else:
+        raise InputError(f"band={band!r}: give two wavelengths or energies as a Quantity, e.g. (0.1, 2.4) * u.keV, "
+                         "or a Band", argument="band")
+    return np.array([b.energy_kev for b in bands]), [b.label for b in bands]
 
 
 def _band_quantity(dem, band, distance, table, abundances, density, pressure, photons):
     prep = prepare(table, abundances, density, pressure)
-    w, em_unit = _weights(dem, prep)
-    bands, labels = _band_list(band)
+    w, em_unit = dem_weights(dem, prep)
+    bands, labels = band_list(band)
     k = band_kernel(bands, prep, photons=photons)  # (n_b, T)
     scale, extra_unit, kind = _output_scale(em_unit, distance)
     vals = (w @ k.T) * scale  # batch + (n_b,)
@@ -255,7 +270,7 @@ def _band_quantity(dem, band, distance, table, abundances, density, pressure, ph
     q = u.Quantity(vals, unit)
     if kind == "intensity":
         q = q.to(base / u.cm ** 2 / u.sr)
-    if len(labels) == 1 and not isinstance(band, dict) and not (isinstance(band, u.Quantity) and band.ndim == 2):
+    if isinstance(band, (Band, str)) or (isinstance(band, u.Quantity) and band.ndim == 1):
         q = q[..., 0]
     return q
 
@@ -357,7 +372,7 @@ def synthesize(dem, wavelength=None, energy=None, table=None, abundances="corona
     if energy is not None and grid.wavelength_axis:
         raise u.UnitsError(f"energy has units '{graw.unit}': expected an energy (use wavelength= for wavelengths)")
     prep = prepare(table, abundances, density, pressure)
-    w, em_unit = _weights(dem, prep)
+    w, em_unit = dem_weights(dem, prep)
     if w.ndim != 1:
         raise InputError(f"synthesize takes one DEM; got a batch of shape {w.shape[:-1]} (use band_flux for batches)")
     e_lo, e_hi = grid.lo_hi_kev()

@@ -53,6 +53,7 @@ from scipy.integrate import cumulative_trapezoid
 from ..abundances import mean_mass_per_hydrogen
 from ..constants import PARSEC_CM
 from ..dem import DEM
+from ..emissivity import resolve_table
 from ..errors import InputError
 from ..validation import as_quantity, as_scalar, check_range
 from . import mass_removal as mr
@@ -226,10 +227,13 @@ class DimmingScenario:
         Recovery time constant (see :mod:`synthcorona.dimming.profile`).
     upflow_fraction : float
         f of the refilling time L / (f c_s) (default 0.05).
+    table : EmissivityTable or path, optional
+        Emissivity table of every band rate and of the flare's radiative loss (default: the
+        embedded table, or ``$SYNTHCORONA_TABLE``; see :func:`synthcorona.emissivity.resolve_table`).
     """
 
     def __init__(self, star, corona, cme, flare=None, instrument="sc-euv171", observation=None, *,
-                 recovery="refill", upflow_fraction=prof.DEFAULT_UPFLOW_FRACTION):
+                 recovery="refill", upflow_fraction=prof.DEFAULT_UPFLOW_FRACTION, table=None):
         for name, val, cls in (("star", star, Star), ("corona", corona, Corona), ("cme", cme, CME),
                                ("observation", observation, Observation)):
             if not isinstance(val, cls):
@@ -240,15 +244,15 @@ class DimmingScenario:
         self.bands = _resolve_instruments(instrument)
         self.recovery = recovery
         self.upflow_fraction = upflow_fraction
+        self.table = resolve_table(table)
         self._setup()
 
     # ------------------------------------------------------------------ precomputation
     def _setup(self):
-        from ..emissivity import load_emissivity
         from ..instruments.observables import absorbed_band_kernel, nh_value
         from ..synthesis import prepare
 
-        table = load_emissivity()
+        table = self.table
         self.logT = np.asarray(table.logT, dtype=float)
         cor, cme = self.corona, self.cme
         t_src = cme.source_temperature.to(u.K)

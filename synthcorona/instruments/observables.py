@@ -42,7 +42,7 @@ from ..absorption import ISM_ENERGY_MAX, ISM_ENERGY_MIN, NH_MAX, ism_cross_secti
 from ..abundances import resolve_abundances
 from ..constants import HC_KEV_ANGSTROM, KEV_TO_ERG, PARSEC_CM
 from ..errors import InputError
-from ..synthesis import _weights, luminosity, prepare
+from ..synthesis import dem_weights, luminosity, prepare
 from ..validation import as_quantity, check_range
 
 __all__ = [
@@ -163,7 +163,7 @@ def binned_emissivity(edges_kev: np.ndarray, prep, photons: bool = True, nh: flo
     edges_kev : ndarray
         Strictly increasing bin edges in keV inside the table's continuum range (and, with
         ``nh``, inside the ISM model's 10 eV-10 keV).
-    prep : synthcorona.synthesis._Prepared
+    prep : synthcorona.synthesis.PreparedTable
         From :func:`synthcorona.synthesis.prepare`.
     photons : bool
         Photons cm3 s-1 per bin (True) or erg cm3 s-1 per bin.
@@ -233,12 +233,12 @@ def binned_emissivity(edges_kev: np.ndarray, prep, photons: bool = True, nh: flo
 
 def _energy_bands(band) -> tuple[np.ndarray, list[str], bool]:
     """Parse energy bands: (lo, hi) Quantity, (n, 2) Quantity or dict -> ((n, 2) keV, labels, single)."""
-    from ..synthesis import _band_list
+    from ..synthesis import band_list
 
     single = not isinstance(band, dict) and not (isinstance(band, u.Quantity) and band.ndim == 2)
     if isinstance(band, tuple) and len(band) == 2 and all(isinstance(b, u.Quantity) and b.isscalar for b in band):
         band = u.Quantity([band[0], band[1].to(band[0].unit, equivalencies=u.spectral())])
-    arr, labels = _band_list(band)
+    arr, labels = band_list(band)
     return arr, labels, single
 
 
@@ -296,7 +296,7 @@ def observed_flux(dem, band, distance, nh=None, table=None, abundances="coronal"
     """
     nhv = nh_value(nh)
     prep = prepare(table, abundances, density, pressure)
-    w, em_unit = _weights(dem, prep)
+    w, em_unit = dem_weights(dem, prep)
     if not em_unit.is_equivalent(u.cm**-3):
         raise InputError(f"dem has units {em_unit}: observed_flux needs a volume DEM (cm^-3)")
     d = _distance_cm(distance, w.shape[:-1])
@@ -453,7 +453,7 @@ def counts_to_flux(instrument, band=None, flux_band=None, nh=None, absorbed: boo
         attrs["plasma"] = "isothermal at each table temperature"
         return xr.DataArray(c, dims=("logT",), coords={"logT": resp.logT.values}, attrs=attrs,
                             name="counts_to_flux")
-    w, _ = _weights(dem, prep)
+    w, _ = dem_weights(dem, prep)
     f, r = w @ kf, w @ kr
     with np.errstate(invalid="ignore", divide="ignore"):
         c = np.where(r > 0, f / r, np.nan)

@@ -984,12 +984,12 @@ class Instrument:
     def _count_rate_values(self, dem, distance, nh, band, table, abundances, density, pressure, ism_abundances,
                            solid_angle):
         """Count rates (batch + (n_bands,)) in counts s^-1, the band list, and attrs pieces."""
-        from ..synthesis import _weights, prepare
+        from ..synthesis import dem_weights, prepare
         from .observables import _distance_cm, nh_value
 
         nhv = nh_value(nh)
         prep = prepare(table, abundances, density, pressure)
-        w, em_unit = _weights(dem, prep)
+        w, em_unit = dem_weights(dem, prep)
         blist = self._response_bands(band)
         batch = w.shape[:-1]
         if em_unit.is_equivalent(u.cm**-3):
