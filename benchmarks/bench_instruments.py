@@ -44,15 +44,15 @@ def main(path=None):
     bands10 = {f"b{k}": [edges[k], edges[k + 1]] * u.keV for k in range(10)}
     names10 = list(bands10)
     t0 = time.perf_counter()
-    sxt = load_generic("sc-sxt").with_bands(**bands10)
-    print(f"  building sc-sxt (optics + Gaussian RMF): {(time.perf_counter() - t0) * 1e3:.1f} ms (cached afterwards)")
+    sxt = load_generic("sc-softx").with_bands(**bands10)
+    print(f"  building sc-softx (optics + Gaussian RMF): {(time.perf_counter() - t0) * 1e3:.1f} ms (cached afterwards)")
     # the same ten bands on a perfect-resolution instrument (no redistribution)
     e = np.geomspace(0.1, 10.0, 4001)
     flat = Instrument("flat", e[:-1] * u.keV, e[1:] * u.keV, np.full(4000, 100.0) * u.cm**2, bands=bands10)
 
     print("\n1. temperature responses, 10 bands x", table.logT.size, "temperatures")
-    for label, inst, kw in [("sc-sxt (RMF), no absorption", sxt, {}),
-                            ("sc-sxt (RMF), N_H = 1e20 cm-2", sxt, {"nh": 1e20 * u.cm**-2}),
+    for label, inst, kw in [("sc-softx (RMF), no absorption", sxt, {}),
+                            ("sc-softx (RMF), N_H = 1e20 cm-2", sxt, {"nh": 1e20 * u.cm**-2}),
                             ("flat ARF-like, no absorption", flat, {})]:
         dens = 10 ** np.random.uniform(9, 11) * u.cm**-3      # a density not seen before: cold prepare()
         resp, cold = _timed(lambda: inst.temperature_response(table=table, density=dens, bands=names10, **kw))
@@ -61,7 +61,7 @@ def main(path=None):
         print(f"  {label:32s} first call {_verdict(cold, 1.0)}; repeated {warm * 1e3:.2f} ms")
     _, prep_t = _timed(lambda: prepare(table, "coronal", 10 ** np.random.uniform(9, 11) * u.cm**-3))
     print(f"  (of which synthcorona.synthesis.prepare for a new density: {prep_t * 1e3:.1f} ms)")
-    for name in ("sc-euv171", "sc-euv193", "sc-euv211", "sc-euvphot"):
+    for name in ("sc-fe9", "sc-fe12", "sc-fe14", "sc-euvphot"):
         inst = load_generic(name)
         _, cold = _timed(lambda: inst.temperature_response(table=table))
         print(f"  {name:32s} first call {cold * 1e3:9.2f} ms ({inst.area.size} energy bins)")

@@ -75,14 +75,14 @@ def _gauss(n, seed=0):
     return sc.GaussianDEM(rng.uniform(6.0, 7.2, n), rng.uniform(0.1, 0.25, n), 10 ** rng.uniform(50, 52, n) * u.cm**-3)
 
 
-def _ten_band_sxt():
+def _ten_band_softx():
     import astropy.units as u
 
     from synthcorona.instruments import load_generic
 
     edges = np.geomspace(0.2, 8.0, 11)
     bands = {f"b{k}": [edges[k], edges[k + 1]] * u.keV for k in range(10)}
-    return load_generic("sc-sxt").with_bands(**bands), list(bands)
+    return load_generic("sc-softx").with_bands(**bands), list(bands)
 
 
 def _dimming_scenario(n_bins=1000):
@@ -102,7 +102,7 @@ def _dimming_scenario(n_bins=1000):
                                       GaussianDEM(6.9, 0.15, 1e52 * u.cm**-3)]), density=1e9 * u.cm**-3),
             CME(1e18 * u.g, source_temperature=2e6 * u.K),
             Flare(1e33 * u.erg, loop_half_length=5e9 * u.cm, loop_cross_section=1e19 * u.cm**2),
-            ["sc-euv171", "sc-euv193", ("sc-sxt", "soft")],
+            ["sc-fe9", "sc-fe12", ("sc-softx", "soft")],
             Observation(n_bins * u.min, 60 * u.s, 3 * u.h))
 
 
@@ -407,7 +407,7 @@ class Load:
 
 # --- instruments --------------------------------------------------------------------------------
 @bench("responses_10x81", target=("time_max", 1.0),
-       about="temperature responses of 10 bands (sc-sxt with RMF) x 81 T at a new density, first call; "
+       about="temperature responses of 10 bands (sc-softx with RMF) x 81 T at a new density, first call; "
              "baseline: per temperature, synthesize the isothermal spectrum and fold it (81 x 10)")
 class Responses:
     @staticmethod
@@ -417,7 +417,7 @@ class Responses:
         import synthcorona as sc
 
         table = sc.load_emissivity()
-        sxt, names = _ten_band_sxt()
+        sxt, names = _ten_band_softx()
         sxt.temperature_response(table=table, bands=names)  # builds the instrument's matrices once
         dens = iter(10 ** np.linspace(9.05, 10.95, 10) * u.cm**-3)  # a density not seen before each time
         t, c, K = best_of(lambda: sxt.temperature_response(table=table, density=next(dens), bands=names), n=3)
@@ -432,7 +432,7 @@ class Responses:
         import synthcorona as sc
 
         table = sc.load_emissivity()
-        sxt, names = _ten_band_sxt()
+        sxt, names = _ten_band_softx()
         e = sxt.energy_lo.to_value(u.keV), sxt.energy_hi.to_value(u.keV)
         edges = np.concatenate([e[0], e[1][-1:]]) * u.keV
         logT = table.logT[::8] if quick else table.logT
@@ -475,7 +475,7 @@ class CountRates:
         import synthcorona as sc
 
         table = sc.load_emissivity()
-        sxt, names = _ten_band_sxt()
+        sxt, names = _ten_band_softx()
         n = 1000 if quick else 10_000
         dem = _gauss(n)
         run = lambda: sxt.count_rate(dem, distance=10 * u.pc, band=names, table=table)  # noqa: E731
@@ -492,7 +492,7 @@ class CountRates:
         import synthcorona as sc
 
         table = sc.load_emissivity()
-        sxt, names = _ten_band_sxt()
+        sxt, names = _ten_band_softx()
         n = 1000 if quick else 10_000
         m = 50 if quick else 200
         dem = _gauss(n)
@@ -643,7 +643,7 @@ class PDetectLikelihood:
 
 
 @bench("min_detectable_mass", target=("time_max", 10.0),
-       about="DimmingScenario.minimum_detectable_mass (P = 0.5, window, 10,000 realisations, sc-euv193) vs a "
+       about="DimmingScenario.minimum_detectable_mass (P = 0.5, window, 10,000 realisations, sc-fe12) vs a "
              "scan of P(detect) over 16 masses with linear interpolation (same band and realisations)")
 class MinMass:
     @staticmethod
@@ -653,7 +653,7 @@ class MinMass:
         sc_ = _dimming_scenario()
         n = 1000 if quick else 10_000
         t, c, res = best_of(lambda: sc_.minimum_detectable_mass(0.5, bracket=(1e16 * u.g, 1e19 * u.g),
-                                                                band="sc-euv193", n_realisations=n, seed=0), n=1)
+                                                                band="sc-fe12", n_realisations=n, seed=0), n=1)
         return {"seconds": t, "cpu": c, "note": f"M = {float(res.mass):.3g} +- {float(res.mass_error):.2g} g, "
                 f"{res.attrs['n_evaluations']} evaluations"}
 
@@ -666,7 +666,7 @@ class MinMass:
         masses = np.geomspace(1e16, min(1e19, float(sc_.max_mass.value)), 16)
 
         def run():
-            p = [float(sc_.detection_probability(n, seed=0, band="sc-euv193", mass=m * u.g).probability.values[0])
+            p = [float(sc_.detection_probability(n, seed=0, band="sc-fe12", mass=m * u.g).probability.values[0])
                  for m in masses]
             return float(np.exp(np.interp(0.5, p, np.log(masses))))
         t, c, m50 = best_of(run, n=1)
@@ -719,7 +719,7 @@ class BuildScaling:
 
 @bench("grid_scaling", target=None,
        about="detection_grid over 8 masses (measured) vs over 2 masses (baseline), 1000 realisations each, "
-             "sc-euv193; ratio = time(2) / time(8): 0.25 = linear in the number of grid points")
+             "sc-fe12; ratio = time(2) / time(8): 0.25 = linear in the number of grid points")
 class GridScaling:
     @staticmethod
     def _run(quick, k):
@@ -729,7 +729,7 @@ class GridScaling:
 
         sc_ = _dimming_scenario()
         masses = np.geomspace(1e16, 1e18, k) * u.g
-        t, c, ds = best_of(lambda: detection_grid(sc_, mass=masses, n_realisations=1000, band="sc-euv193"), n=1)
+        t, c, ds = best_of(lambda: detection_grid(sc_, mass=masses, n_realisations=1000, band="sc-fe12"), n=1)
         return {"seconds": t, "cpu": c, "note": f"{k} grid points, {t / k:.2f} s per point"}
 
     @staticmethod

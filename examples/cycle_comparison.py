@@ -1,14 +1,14 @@
 """Compare an invented star's corona across its activity cycle with the Python API.
 
-"Corvan-9" is an invented young solar-type star at 3 pc (no real star or data set). Four phases of
+"Corvanne" is an invented young solar-type star at 3 pc (no real star or data set). Four phases of
 an invented 8-year cycle are given three ways -- a DEM, multi-temperature components, and a
 measured 0.1-2.4 keV flux with a temperature -- and compared: band fluxes, count rates in two
 generic instruments of synthcorona, the hardness ratio, the cycle amplitude, the conversion of a
 count rate in the soft-X-ray telescope into the 193 Angstrom EUV channel, and how detectable one
 reference CME dimming is at each phase (small Monte Carlo, fixed seed).
 
-The same star is described by the cycle file examples/cycle/corvan9_cycle.toml, for the command
-line: ``synthcorona cycle examples/cycle/corvan9_cycle.toml --out corvan9_out``.
+The same star is described by the cycle file examples/cycle/corvanne_cycle.toml, for the command
+line: ``synthcorona cycle examples/cycle/corvanne_cycle.toml --out corvanne_out``.
 
 Run:  python examples/cycle_comparison.py
 """
@@ -39,37 +39,37 @@ def main():
     ]
     # Reference CME: its corona DEM is replaced by each phase's DEM.
     reference = DimmingScenario(star, Corona(GaussianDEM(6.3, 0.2, 1e51 * u.cm ** -3), density=2e9 * u.cm ** -3),
-                                CME(1e17 * u.g, source_temperature=2 * u.MK), None, "sc-euv193",
+                                CME(1e17 * u.g, source_temperature=2 * u.MK), None, "sc-fe12",
                                 Observation(exposure=12 * u.h, bin_width=120 * u.s, pre_event=3 * u.h))
     ds = compare_cycle(phases, star, bands={"0.1-2.4 keV": [0.1, 2.4] * u.keV, "EUV": [100, 400] * u.AA},
-                       instruments=["sc-sxt", "sc-euv193"],
-                       conversion=CountConversion("sc-sxt:broad", "sc-euv193", rate=1.5 * u.ct / u.s),
+                       instruments=["sc-softx", "sc-fe12"],
+                       conversion=CountConversion("sc-softx:broad", "sc-fe12", rate=1.5 * u.ct / u.s),
                        reference=reference, n_realisations=1000, seed=7, density=2e9 * u.cm ** -3,
-                       period=8 * u.yr, name="Corvan-9 (invented)")
+                       period=8 * u.yr, name="Corvanne (invented)")
 
-    print("Corvan-9 (invented G2 V star at 3 pc) over an invented 8-year cycle")
+    print("Corvanne (invented G2 V star at 3 pc) over an invented 8-year cycle")
     for i, lab in enumerate(ds["label"].values):
         print(f"  {lab:>8s} ({ds['phase'].values[i]:.0f} yr, {ds['phase_source'].values[i]:>10s}): "
               f"F(0.1-2.4 keV) {ds['flux'].values[i, 0]:.3e} erg s-1 cm-2, "
-              f"sc-sxt broad {ds['count_rate'].sel(channel='sc-sxt:broad').values[i]:.3f} ct/s, "
+              f"sc-softx broad {ds['count_rate'].sel(channel='sc-softx:broad').values[i]:.3f} ct/s, "
               f"HR {ds['hardness_ratio'].values[i, 0]:+.3f}, "
               f"P(detect CME) {ds['detection_probability'].values[i, 0]:.2f}")
     print(f"  flux amplitude (max/min) 0.1-2.4 keV: {ds['flux_amplitude'].values[0]:.2f}, "
           f"EUV: {ds['flux_amplitude'].values[1]:.2f}")
 
-    # One conversion by hand, and back: 1.5 ct/s in sc-sxt:broad at maximum -> sc-euv193 -> sc-sxt:broad.
+    # One conversion by hand, and back: 1.5 ct/s in sc-softx:broad at maximum -> sc-fe12 -> sc-softx:broad.
     dem_max = phases[2].resolve(star.distance, density=2e9 * u.cm ** -3)
-    fwd = convert_count_rate(1.5 * u.ct / u.s, dem_max, "sc-sxt:broad", "sc-euv193", nh=star.nh,
+    fwd = convert_count_rate(1.5 * u.ct / u.s, dem_max, "sc-softx:broad", "sc-fe12", nh=star.nh,
                              density=2e9 * u.cm ** -3)
-    back = convert_count_rate(fwd.rate, dem_max, "sc-euv193", "sc-sxt:broad", nh=star.nh,
+    back = convert_count_rate(fwd.rate, dem_max, "sc-fe12", "sc-softx:broad", nh=star.nh,
                               density=2e9 * u.cm ** -3)
-    print(f"  at maximum: 1.5 ct/s in sc-sxt:broad = {fwd.rate:.4f} in sc-euv193 "
+    print(f"  at maximum: 1.5 ct/s in sc-softx:broad = {fwd.rate:.4f} in sc-fe12 "
           f"(flux {fwd.flux:.3e}); back: {back.rate:.6f}")
 
     out = pathlib.Path("cycle_comparison_out")
     paths = save_cycle_figures(ds, out)
     print(f"  wrote {len(paths)} figures to {out}/ ({', '.join(p.name for p in paths)})")
-    print(f"  cycle file for the command line: {HERE / 'cycle' / 'corvan9_cycle.toml'}")
+    print(f"  cycle file for the command line: {HERE / 'cycle' / 'corvanne_cycle.toml'}")
     print(f"done in {time.perf_counter() - t0:.1f} s")
 
 

@@ -1,6 +1,6 @@
 """Simulate and fit a CME dimming on an invented star.
 
-The star, its corona and the event are invented for illustration: "Tessaly-4", an active K dwarf
+The star, its corona and the event are invented for illustration: "Tessamir", an active K dwarf
 at 3 pc, whose corona (two Gaussian DEM components at 2 and 8 MK) loses 3e18 g of 2 MK plasma in a
 CME with a 1e33 erg flare. Two generic instruments of synthcorona observe it (no real mission).
 
@@ -31,11 +31,11 @@ def main():
     cme = CME(3e18 * u.g, source_temperature=2e6 * u.K, speed=800 * u.km / u.s, source_size=2e10 * u.cm)
     flare = Flare(1e33 * u.erg, loop_half_length=5e9 * u.cm, loop_cross_section=1e19 * u.cm ** 2)
     obs = Observation(exposure=10 * u.h, bin_width=60 * u.s, pre_event=3 * u.h,
-                      background={"sc-euv193": 0.5 * u.ct / u.s})
+                      background={"sc-fe12": 0.5 * u.ct / u.s})
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")    # the flare loop run may stop early; the scenario records it
-        scenario = DimmingScenario(star, corona, cme, flare, ["sc-euv171", "sc-euv193"], obs)
-    print("Tessaly-4 (invented K dwarf at 3 pc)")
+        scenario = DimmingScenario(star, corona, cme, flare, ["sc-fe9", "sc-fe12"], obs)
+    print("Tessamir (invented K dwarf at 3 pc)")
     depth = scenario.depth()
     for band in depth.band.values:
         print(f"  {band}: quiescent {float(depth.quiescent_rate.sel(band=band)):.2f} ct/s, "

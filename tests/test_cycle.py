@@ -19,7 +19,7 @@ from synthcorona.io.cycle_file import read_cycle_file
 from synthcorona.products.cycle import CyclePhase, compare_cycle, convert_count_rate, cycle_tables
 from synthcorona.synthesis import band_flux
 
-EXAMPLE = pathlib.Path(__file__).parent.parent / "examples" / "cycle" / "corvan9_cycle.toml"
+EXAMPLE = pathlib.Path(__file__).parent.parent / "examples" / "cycle" / "corvanne_cycle.toml"
 FLUX = u.erg / u.s / u.cm ** 2
 KB_KEV = 8.617333262e-8  # Boltzmann constant in keV/K (CODATA 2018)
 # N_H and density of the example cycle file: tests using them share its cached instrument responses.
@@ -30,15 +30,15 @@ def test_count_rate_conversion_round_trip_and_direct_rates():
     dem = GaussianDEM(6.4, 0.2, 1e51 * u.cm ** -3) + IsothermalDEM(8 * u.MK, 1e50 * u.cm ** -3)
     nh, dens = NH, DENSITY
     rate = 2.0 * u.ct / u.s
-    fwd = convert_count_rate(rate, dem, "sc-sxt:broad", "sc-euv193", nh=nh, density=dens)
-    back = convert_count_rate(fwd.rate, dem, "sc-euv193", "sc-sxt:broad", nh=nh, density=dens)
+    fwd = convert_count_rate(rate, dem, "sc-softx:broad", "sc-fe12", nh=nh, density=dens)
+    back = convert_count_rate(fwd.rate, dem, "sc-fe12", "sc-softx:broad", nh=nh, density=dens)
     assert back.rate.to_value(u.ct / u.s) == pytest.approx(2.0, rel=1e-6)
     # The target rate is what the instrument itself predicts for the DEM scaled to the source rate.
-    r_src = load_generic("sc-sxt").count_rate(dem, distance=5 * u.pc, nh=nh, band="broad", density=dens).value
-    r_tgt = load_generic("sc-euv193").count_rate(dem, distance=5 * u.pc, nh=nh, band="total", density=dens).value
+    r_src = load_generic("sc-softx").count_rate(dem, distance=5 * u.pc, nh=nh, band="broad", density=dens).value
+    r_tgt = load_generic("sc-fe12").count_rate(dem, distance=5 * u.pc, nh=nh, band="total", density=dens).value
     assert fwd.rate.value == pytest.approx(2.0 * r_tgt / r_src, rel=1e-9)
     # The flux is the DEM's unabsorbed flux in the target band scaled the same way.
-    lo, hi = load_generic("sc-euv193").energy_range
+    lo, hi = load_generic("sc-fe12").energy_range
     f = band_flux(dem, u.Quantity([lo, hi]), 5 * u.pc, density=dens).to_value(FLUX)
     assert fwd.flux.to_value(FLUX) == pytest.approx(2.0 * f / r_src, rel=1e-6)
 
@@ -64,8 +64,8 @@ def test_hardness_and_amplitude_equal_direct_computation():
             GaussianDEM(6.3, 0.2, 1e51 * u.cm ** -3)]
     phases = [CyclePhase(f"p{k}", k * 2.5 * u.yr, dem=d) for k, d in enumerate(dems)]
     band = [0.5, 2.0] * u.keV
-    ds = compare_cycle(phases, star, bands={"b": band}, instruments=["sc-sxt"], density=DENSITY)
-    sxt = load_generic("sc-sxt")
+    ds = compare_cycle(phases, star, bands={"b": band}, instruments=["sc-softx"], density=DENSITY)
+    sxt = load_generic("sc-softx")
     resolved = [p.resolve(star.distance) for p in phases]
     h = np.array([sxt.count_rate(d, distance=star.distance, nh=star.nh, band="hard", density=DENSITY).value
                   for d in resolved])
@@ -76,8 +76,8 @@ def test_hardness_and_amplitude_equal_direct_computation():
     f = np.array([band_flux(d, band, star.distance, density=DENSITY).to_value(FLUX) for d in resolved])
     assert ds["flux_amplitude"].values[0] == pytest.approx(f.max() / f.min(), rel=1e-10)
     assert ds["flux_log_amplitude"].values[0] == pytest.approx(np.log10(f.max() / f.min()), rel=1e-10)
-    rate_h = ds["count_rate"].sel(channel="sc-sxt:hard").values
-    assert ds["count_rate_amplitude"].sel(channel="sc-sxt:hard").values == pytest.approx(h.max() / h.min(), rel=1e-10)
+    rate_h = ds["count_rate"].sel(channel="sc-softx:hard").values
+    assert ds["count_rate_amplitude"].sel(channel="sc-softx:hard").values == pytest.approx(h.max() / h.min(), rel=1e-10)
     np.testing.assert_allclose(rate_h, h, rtol=1e-10)
     # Amplitude of isothermal phases differing only in EM is the EM ratio (flux linear in EM).
     iso = [CyclePhase("a", 0.1, dem=IsothermalDEM(3 * u.MK, 2e50 * u.cm ** -3)),
@@ -91,7 +91,7 @@ def test_minimum_detectable_mass_per_phase_is_consistent_with_detection_probabil
 
     star = Star(distance=3 * u.pc, nh=NH)
     ref = DimmingScenario(star, Corona(GaussianDEM(6.3, 0.2, 1e51 * u.cm ** -3), density=DENSITY),
-                          CME(1e17 * u.g, source_temperature=2 * u.MK), None, "sc-euv193",
+                          CME(1e17 * u.g, source_temperature=2 * u.MK), None, "sc-fe12",
                           Observation(12 * u.h, 120 * u.s, 3 * u.h))
     phases = [CyclePhase("quiet", 0.0, dem=GaussianDEM(6.2, 0.2, 6e50 * u.cm ** -3)),
               CyclePhase("active", 0.5, dem=GaussianDEM(6.4, 0.15, 2.5e51 * u.cm ** -3))]
@@ -159,7 +159,7 @@ def test_cli_end_to_end_matches_api(tmp_path, capsys):
     out = tmp_path / "out"
     assert main(["cycle", str(EXAMPLE), "--out", str(out), "--realisations", "1000"]) == 0
     text = capsys.readouterr().out
-    assert "Corvan-9" in text and "P(detect)" in text
+    assert "Corvanne" in text and "P(detect)" in text
     for name in ("cycle.nc", "cycle_phases.ecsv", "cycle_phases.csv", "cycle_amplitudes.ecsv", "cycle_fluxes.png",
                  "cycle_count_rates.png", "cycle_hardness.png", "cycle_conversion.png", "cycle_dimming.png"):
         assert (out / name).stat().st_size > 0, name
@@ -173,15 +173,15 @@ def test_cli_end_to_end_matches_api(tmp_path, capsys):
     f0 = band_flux(dem0, [0.1, 2.4] * u.keV, 3 * u.pc, density=2e9 * u.cm ** -3).to_value(FLUX)
     assert ds["flux"].sel(band="0.1-2.4 keV").values[0] == pytest.approx(f0, rel=1e-9)
     assert per["flux[0.1-2.4 keV]"][0].to_value(FLUX) == pytest.approx(f0, rel=1e-9)
-    sxt = load_generic("sc-sxt")
+    sxt = load_generic("sc-softx")
     r0 = sxt.count_rate(dem0, distance=3 * u.pc, nh=3e17 * u.cm ** -2, band="broad", density=2e9 * u.cm ** -3).value
-    assert ds["count_rate"].sel(channel="sc-sxt:broad").values[0] == pytest.approx(r0, rel=1e-9)
-    assert per["count_rate[sc-sxt:broad]"][0].to_value(u.ct / u.s) == pytest.approx(r0, rel=1e-9)
+    assert ds["count_rate"].sel(channel="sc-softx:broad").values[0] == pytest.approx(r0, rel=1e-9)
+    assert per["count_rate[sc-softx:broad]"][0].to_value(u.ct / u.s) == pytest.approx(r0, rel=1e-9)
     # The 'early rise' phase is a measured flux: reproduced.
     assert ds["flux"].sel(band="0.1-2.4 keV").values[1] == pytest.approx(2.0e-11, rel=1e-6)
-    # Conversion: 1.5 ct/s in sc-sxt:broad -> sc-euv193, as convert_count_rate gives for that phase's DEM.
+    # Conversion: 1.5 ct/s in sc-softx:broad -> sc-fe12, as convert_count_rate gives for that phase's DEM.
     dems = [p.resolve(star.distance, abundances=inputs.abundances, density=dens) for p in inputs.phases]
-    conv = convert_count_rate(1.5 * u.ct / u.s, dems[3], "sc-sxt:broad", "sc-euv193", nh=star.nh, density=dens)
+    conv = convert_count_rate(1.5 * u.ct / u.s, dems[3], "sc-softx:broad", "sc-fe12", nh=star.nh, density=dens)
     assert ds["converted_rate"].values[3] == pytest.approx(conv.rate.value, rel=1e-9)
     assert per["converted_flux"][3].to_value(FLUX) == pytest.approx(conv.flux.to_value(FLUX), rel=1e-9)
     # Dimming at the first phase: the reference scenario with the phase DEM, same seed.
@@ -276,7 +276,7 @@ def test_list_command_runs(capsys):
 
     assert main(["list"]) == 0
     text = capsys.readouterr().out
-    for word in ("sc-sxt:hard", "sc-euv171", "coronal", "gaussian", "CHIANTI", "content_hash"):
+    for word in ("sc-softx:hard", "sc-fe9", "coronal", "gaussian", "CHIANTI", "content_hash"):
         assert word in text, word
     assert main(["list", "abundances"]) == 0
-    assert "sc-sxt" not in capsys.readouterr().out
+    assert "sc-softx" not in capsys.readouterr().out

@@ -30,7 +30,7 @@ PH = u.ph / (u.s * u.cm**2)
 # ----------------------------------------------------------------------------- generic instruments
 def test_generic_instruments_are_listed_and_say_they_are_generic():
     names = list_generic()
-    assert set(names) == {"sc-sxt", "sc-euv171", "sc-euv193", "sc-euv211", "sc-euvphot"}
+    assert set(names) == {"sc-softx", "sc-fe9", "sc-fe12", "sc-fe14", "sc-euvphot"}
     assert set(GENERIC_EUV_CHANNELS) <= set(names)
     for name, text in names.items():
         inst = load_generic(name)
@@ -40,7 +40,7 @@ def test_generic_instruments_are_listed_and_say_they_are_generic():
         assert inst.provenance["design"]["filters"]
 
 
-@pytest.mark.parametrize("name, centre", [("sc-euv171", 171.0), ("sc-euv193", 193.0), ("sc-euv211", 211.0)])
+@pytest.mark.parametrize("name, centre", [("sc-fe9", 171.0), ("sc-fe12", 193.0), ("sc-fe14", 211.0)])
 def test_euv_channels_peak_at_their_wavelength_and_obey_the_product_rule(name, centre):
     inst = load_generic(name)
     lam = np.linspace(centre - 15.0, centre + 15.0, 3001) * u.AA
@@ -63,7 +63,7 @@ def test_soft_xray_telescope_cuts_off_above_the_critical_angle_energy():
     # Total external reflection below theta_c = sqrt(2 delta) (Attwood 1999, "Soft X-rays and
     # Extreme Ultraviolet Radiation", ch. 3): a gold mirror at 0.7 deg reflects well while
     # sqrt(2 delta) > 0.7 deg and poorly above the energy where sqrt(2 delta) = 0.7 deg.
-    sxt = load_generic("sc-sxt")
+    sxt = load_generic("sc-softx")
     e = np.geomspace(0.5, 10.0, 400) * u.keV
     delta = 1.0 - optics.refractive_index(e, "Au").real
     theta_c = np.degrees(np.sqrt(2 * delta))
@@ -78,7 +78,7 @@ def test_soft_xray_telescope_cuts_off_above_the_critical_angle_energy():
 def test_ccd_resolution_is_fano_limited_gaussian():
     # FWHM = 2.3548 w sqrt(F E / w + N^2), w = 3.65 eV, F = 0.115 (silicon; Fano 1947, Phys. Rev.
     # 72, 26; values from memory of Janesick 2001, "Scientific CCDs", SPIE), N = 4 e- (design).
-    sxt = load_generic("sc-sxt")
+    sxt = load_generic("sc-softx")
     e0 = 1.4
     fwhm_per_sigma = 2 * np.sqrt(2 * np.log(2))                                      # 2.3548
     expected_fwhm_ev = fwhm_per_sigma * 3.65 * np.sqrt(0.115 * e0 * 1e3 / 3.65 + 4.0**2)   # 66.6 eV
@@ -164,9 +164,9 @@ def test_build_instrument_bad_inputs():
 
 # ----------------------------------------------------------------------------- load_instrument
 def test_load_instrument_accepts_generic_names_and_files(tmp_path):
-    assert load_instrument("sc-euv193") is load_generic("sc-euv193")
-    with_band = load_instrument("sc-sxt", bands={"oxygen": [0.5, 0.7] * u.keV})
-    assert "oxygen" in with_band.bands and "oxygen" not in load_generic("sc-sxt").bands
+    assert load_instrument("sc-fe12") is load_generic("sc-fe12")
+    with_band = load_instrument("sc-softx", bands={"oxygen": [0.5, 0.7] * u.keV})
+    assert "oxygen" in with_band.bands and "oxygen" not in load_generic("sc-softx").bands
     t = QTable()
     t["E"] = [1.0, 2.0, 3.0] * u.keV
     t["A"] = [0.0, 10.0, 10.0] * u.cm**2
@@ -176,10 +176,10 @@ def test_load_instrument_accepts_generic_names_and_files(tmp_path):
     # analytic integral of the piecewise-linear curve: 5 + 10 = 15 counts/s for 1 ph/s/cm2/keV
     np.testing.assert_allclose(inst.count_rate_from_spectrum(np.diff(e) * PH, e * u.keV).value, 15.0, rtol=1e-12)
     with pytest.raises(InputError, match="'nowhere.arf' is neither an existing response file nor a generic "
-                                         "instrument name; generic instruments: sc-sxt, sc-euv171"):
+                                         "instrument name; generic instruments: sc-softx, sc-fe9"):
         load_instrument("nowhere.arf")
     with pytest.raises(InputError, match="rmf= cannot be combined"):
-        load_instrument("sc-sxt", rmf="x.rmf")
+        load_instrument("sc-softx", rmf="x.rmf")
 
 
 # ----------------------------------------------------------------------------- plots
@@ -197,11 +197,11 @@ def test_plot_effective_area(tmp_path):
 
 
 def test_plot_temperature_responses(tmp_path, table):
-    r1 = load_generic("sc-sxt").temperature_response(table=table, bands=["soft", "hard"])
-    r2 = load_generic("sc-euv171").temperature_response(table=table)
+    r1 = load_generic("sc-softx").temperature_response(table=table, bands=["soft", "hard"])
+    r2 = load_generic("sc-fe9").temperature_response(table=table)
     fig = plot_temperature_responses(r1, r2)
     ax = fig.axes[0]
-    assert [line.get_label() for line in ax.get_lines()] == ["sc-sxt: soft", "sc-sxt: hard", "sc-euv171: total"]
+    assert [line.get_label() for line in ax.get_lines()] == ["sc-softx: soft", "sc-softx: hard", "sc-fe9: total"]
     assert "cm3 ct / s" in ax.get_ylabel() and "1 pc" in ax.get_ylabel() and ax.get_xlabel() == "Temperature [K]"
     assert ax.get_xscale() == "log" and ax.get_yscale() == "log"
     np.testing.assert_allclose(ax.get_lines()[2].get_xdata(), 10 ** table.logT)
@@ -212,7 +212,7 @@ def test_plot_temperature_responses(tmp_path, table):
 
 
 def test_plot_folded_spectrum(tmp_path, table):
-    sxt = load_generic("sc-sxt")
+    sxt = load_generic("sc-softx")
     dem = sc.GaussianDEM(6.6, 0.2, 1e52 * u.cm**-3)
     edges = np.linspace(0.05, 10.5, 10451) * u.keV
     spec = sc.synthesize(dem, energy=edges, edges=True, photons=True, distance=10 * u.pc, table=table)

@@ -28,7 +28,7 @@ from synthcorona.plotting.dimming import plot_detection_vs_mass, plot_light_curv
 # 5e49 cm-3; from memory, order of magnitude of full-disk quiet-Sun DEMs) and an invented active K dwarf.
 SUN_DEM = GaussianDEM(6.15, 0.2, 5e49 * u.cm ** -3)
 STAR_DEM = MultiComponentDEM([GaussianDEM(6.3, 0.15, 3e52 * u.cm ** -3), GaussianDEM(6.9, 0.15, 1e52 * u.cm ** -3)])
-BANDS = ["sc-euv171", "sc-euv193"]
+BANDS = ["sc-fe9", "sc-fe12"]
 
 
 def _star(mass=1e17 * u.g, distance=2 * u.pc):
@@ -105,10 +105,10 @@ def test_constant_series_equals_isothermal_count_rates():
 
 def test_series_is_linear_in_time_and_with_nh():
     f = np.array([1.0, 0.5, 2.0])
-    ds = lightcurve_from_em_series(_series(f[:, None] * EM[None, :]), "sc-euv193", 2 * u.pc, nh=1e18 * u.cm ** -2)
+    ds = lightcurve_from_em_series(_series(f[:, None] * EM[None, :]), "sc-fe12", 2 * u.pc, nh=1e18 * u.cm ** -2)
     r = ds.count_rate.values[0]
     np.testing.assert_allclose(r / r[0], f, rtol=1e-12)
-    ref = float(load_generic("sc-euv193").count_rate(
+    ref = float(load_generic("sc-fe12").count_rate(
         MultiComponentDEM([IsothermalDEM(10 ** x * u.K, e * u.cm ** -3) for x, e in zip(LT, EM)]),
         2 * u.pc, nh=1e18 * u.cm ** -2)[0].value)
     assert r[0] == pytest.approx(ref, rel=1e-9)
@@ -143,7 +143,7 @@ def test_series_bad_inputs_are_named(tmp_path):
     # zero EM outside the table range is fine
     lt = np.array([5.93, 6.1, 6.27, 8.7])
     ok = lightcurve_from_em_series(_series(np.tile(np.array([1e48, 3e49, 2e49, 0.0]), (2, 1)), logt=lt),
-                                   "sc-euv171", 1 * u.AU)
+                                   "sc-fe9", 1 * u.AU)
     assert np.all(ok.count_rate.values > 0)
     with pytest.raises(InputError, match="em="):
         lightcurve_from_em_series(_series(-np.tile(EM, (2, 1))), BANDS, 1 * u.AU)
@@ -168,18 +168,18 @@ def test_detection_grid_reproducible_and_consistent(star):
     # a nearer star is easier to detect (more counts, same depth)
     assert np.all(a.probability.sel(distance=2).values >= a.probability.sel(distance=4).values)
     # depth is linear in mass (delta = M * d(delta)/dM for pure mass loss) and independent of distance
-    d = a.depth.sel(distance=2, band="sc-euv193").values
+    d = a.depth.sel(distance=2, band="sc-fe12").values
     np.testing.assert_allclose(d / d[0], [1, 4, 15], rtol=1e-12)
     np.testing.assert_allclose(a.depth.sel(distance=4).values, a.depth.sel(distance=2).values, rtol=1e-12)
     # one grid point equals the scenario's own calculation with the same seed
-    p = star.detection_probability(1000, seed=3, band="sc-euv193", mass=4e17 * u.g).probability.values[0]
-    assert float(a.probability.sel(distance=2, mass=4e17, band="sc-euv193")) == p
+    p = star.detection_probability(1000, seed=3, band="sc-fe12", mass=4e17 * u.g).probability.values[0]
+    assert float(a.probability.sel(distance=2, mass=4e17, band="sc-fe12")) == p
 
 
 def test_detection_grid_min_mass_scales_with_distance(star):
     # Gaussian limit: S/N = delta q sqrt(t) / sqrt(q) so the minimum depth scales as q^-1/2 ~ d: doubling the
     # distance doubles the minimum detectable mass (standard Poisson counting argument; common practice, no source).
-    ds = detection_grid(star, distance=[2, 4] * u.pc, instrument=[("sc-euv193")], n_realisations=2000, seed=1,
+    ds = detection_grid(star, distance=[2, 4] * u.pc, instrument=[("sc-fe12")], n_realisations=2000, seed=1,
                         min_mass=True, bracket=(1e16 * u.g, 1e19 * u.g))
     m = ds.minimum_detectable_mass.values[:, 0]
     assert np.all(np.isfinite(m))
@@ -208,22 +208,22 @@ def test_plot_light_curves(tmp_path, star):
     lines = ax.get_lines()
     assert len(lines) == 2 + 2 + 1          # 2 realisations, 2 expected curves, the onset marker
     red = [ln for ln in lines if ln.get_label() == "expected with CME"][0]
-    np.testing.assert_allclose(red.get_ydata(), lc.expected.sel(band="sc-euv193").values, rtol=1e-12)
+    np.testing.assert_allclose(red.get_ydata(), lc.expected.sel(band="sc-fe12").values, rtol=1e-12)
     # the realisations drawn are counts / bin width
-    np.testing.assert_allclose(lines[0].get_ydata(), lc.counts.sel(band="sc-euv193").values[0] / 60.0)
+    np.testing.assert_allclose(lines[0].get_ydata(), lc.counts.sel(band="sc-fe12").values[0] / 60.0)
     # the with-CME curve sits below the without-CME curve after onset: a 1e18 g dimming of depth ~1.3 %
     blue = [ln for ln in lines if ln.get_label() == "expected without CME"][0]
     assert np.min(red.get_ydata() - blue.get_ydata()) < -0.005 * blue.get_ydata()[0]
 
 
 def test_plot_detection_and_min_mass(tmp_path, star):
-    ds = detection_grid(star, mass=[1e17, 4e17, 1.5e18] * u.g, band="sc-euv193", n_realisations=1000, seed=3)
+    ds = detection_grid(star, mass=[1e17, 4e17, 1.5e18] * u.g, band="sc-fe12", n_realisations=1000, seed=3)
     fig = plot_detection_vs_mass(ds)
     fig.savefig(tmp_path / "p.png")
     line = fig.axes[0].get_lines()[0]
     np.testing.assert_allclose(line.get_xdata(), [1e17, 4e17, 1.5e18])
-    np.testing.assert_allclose(line.get_ydata(), ds.probability.sel(band="sc-euv193").values)
-    mm = detection_grid(star, distance=[2, 3] * u.pc, band="sc-euv193", n_realisations=1000, seed=3,
+    np.testing.assert_allclose(line.get_ydata(), ds.probability.sel(band="sc-fe12").values)
+    mm = detection_grid(star, distance=[2, 3] * u.pc, band="sc-fe12", n_realisations=1000, seed=3,
                         min_mass=True, bracket=(1e16 * u.g, 1e19 * u.g))
     fig2 = plot_min_mass_vs_distance(mm)
     fig2.savefig(tmp_path / "m.png")
@@ -258,9 +258,9 @@ def test_series_datetime_time_and_explicit_bands():
     t = np.array(["2030-01-01T00:00", "2030-01-01T00:02"], dtype="datetime64[ns]")
     da = xr.DataArray(np.full((2, 2), 1e49), dims=("temperature", "time"),
                       coords={"time": t, "temperature": [1e6, 2e6]}, attrs={"units": "cm-3"})
-    ds = lightcurve_from_em_series(da, "sc-euv193", 1 * u.pc, bands=[(0.05 * u.keV, 0.08 * u.keV), "total"])
+    ds = lightcurve_from_em_series(da, "sc-fe12", 1 * u.pc, bands=[(0.05 * u.keV, 0.08 * u.keV), "total"])
     np.testing.assert_allclose(ds.time.values, [0.0, 120.0])
-    assert list(ds.band.values) == ["sc-euv193:0", "total"]
+    assert list(ds.band.values) == ["sc-fe12:0", "total"]
     assert np.all(ds.count_rate.values[0] <= ds.count_rate.values[1])   # a sub-band never exceeds the total
     with pytest.raises(InputError, match="single instrument"):
         lightcurve_from_em_series(da, BANDS, 1 * u.pc, bands="total")
@@ -271,6 +271,6 @@ def test_source_density_outside_the_table_is_said_not_silent():
     # Delta EM = n_e M / (mu_H m_H) but its emissivities come from the 1e8 plane, with a warning.
     with pytest.warns(UserWarning, match=r"source density 1e\+07 cm-3 is outside the emissivity table"):
         s = DimmingScenario(Star(1 * u.AU), Corona(SUN_DEM, density=1e7 * u.cm ** -3),
-                            CME(1e14 * u.g, source_temperature=1.5e6 * u.K), None, ["sc-euv171"],
+                            CME(1e14 * u.g, source_temperature=1.5e6 * u.K), None, ["sc-fe9"],
                             Observation(12 * u.h, 60 * u.s, 2 * u.h))
     assert s.density == 1e7 and s.emissivity_density == pytest.approx(1e8)

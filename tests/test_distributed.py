@@ -233,7 +233,7 @@ def star():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         return DimmingScenario(Star(2 * u.pc, nh=1e17 * u.cm ** -2), Corona(STAR_DEM, density=1e9 * u.cm ** -3),
-                               CME(1e17 * u.g, source_temperature=2e6 * u.K), None, ["sc-euv171", "sc-euv193"],
+                               CME(1e17 * u.g, source_temperature=2e6 * u.K), None, ["sc-fe9", "sc-fe12"],
                                Observation(10 * u.h, 60 * u.s, 2 * u.h))
 
 
@@ -251,7 +251,7 @@ def test_detection_grid_on_cluster_identical_to_in_process(star, client):
 
 
 def test_min_mass_grid_on_cluster_identical_to_in_process(star, client):
-    kw = dict(distance=[2, 4] * u.pc, instrument=[("sc-euv193")], n_realisations=1000, seed=1, min_mass=True,
+    kw = dict(distance=[2, 4] * u.pc, instrument=[("sc-fe12")], n_realisations=1000, seed=1, min_mass=True,
               bracket=(1e16 * u.g, 1e19 * u.g))
     ref = detection_grid(star, **kw)
     got = detection_grid(star, scheduler=client, chunk_size=1, **kw)

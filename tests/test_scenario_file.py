@@ -36,7 +36,7 @@ source_temperature = "2 MK"
 energy = "1e32 erg"
 
 [[instrument]]
-generic = "sc-euv171"
+generic = "sc-fe9"
 
 [observation]
 exposure = "6 h"
@@ -70,7 +70,7 @@ def test_values_and_units(tmp_path):
     assert fi.flare.energy.to_value(u.erg) == pytest.approx(1e32, rel=1e-12)
     assert fi.observation.exposure.to_value(u.s) == pytest.approx(6 * 3600, rel=1e-12)
     assert fi.montecarlo.realisations == 1000 and fi.montecarlo.seed == 3 and fi.montecarlo.statistic == "window"
-    assert list(fi.instrument) == ["sc-euv171"] and fi.instrument["sc-euv171"][1] == "total"
+    assert list(fi.instrument) == ["sc-fe9"] and fi.instrument["sc-fe9"][1] == "total"
     assert fi.output["report"] == "html" and fi.title == "test star"
     assert fi.source.endswith("scen.toml") and "[cme]" in fi.raw_text and fi.scenario is None
     # default mass grid: 9 masses from M/30 to 3 M, log-spaced (documented default)
@@ -102,7 +102,7 @@ def test_flare_class_in_file(tmp_path):
 def test_physics_built_instrument_matches_the_api(tmp_path):
     from synthcorona.instruments.designs import build_instrument, default_design_grid
 
-    text = BASE.replace('[[instrument]]\ngeneric = "sc-euv171"', """[[instrument]]
+    text = BASE.replace('[[instrument]]\ngeneric = "sc-fe9"', """[[instrument]]
 name = "probe"
 [instrument.design]
 geometric_area = "20 cm2"
@@ -150,8 +150,8 @@ MALFORMED = [
                           'emission_measure = "1e51 cm-3"\n', 'dem = "gaussian"\n'), "[corona] dem", "must be a table"),
     ("bad flare class", ('energy = "1e32 erg"', 'class = "Z3"'), "[flare] class", "flare class"),
     ("energy and class", ('energy = "1e32 erg"', 'energy = "1e32 erg"\nclass = "M1"'), "[flare] class", "not both"),
-    ("unknown generic", ('generic = "sc-euv171"', 'generic = "sc-euv999"'), "[instrument[0]] generic", "available"),
-    ("unknown band", ('generic = "sc-euv171"', 'generic = "sc-euv171"\nbands = ["soft"]'), "[instrument[0]] bands",
+    ("unknown generic", ('generic = "sc-fe9"', 'generic = "sc-fe99"'), "[instrument[0]] generic", "available"),
+    ("unknown band", ('generic = "sc-fe9"', 'generic = "sc-fe9"\nbands = ["soft"]'), "[instrument[0]] bands",
      "not a band"),
     ("bad statistic", ("seed = 3", 'seed = 3\nstatistic = "chi2"'), "[montecarlo] statistic", "one of"),
     ("too few realisations", ("realisations = 1000", "realisations = 200"), "[montecarlo] realisations", "1000"),

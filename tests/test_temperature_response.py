@@ -29,7 +29,7 @@ PH = u.ph / (u.s * u.cm**2)
 
 @pytest.fixture(scope="module")
 def sxt():
-    return load_generic("sc-sxt")
+    return load_generic("sc-softx")
 
 
 def _flat(lo=0.1, hi=10.0, area=100.0, n=400, **bands):
@@ -54,8 +54,8 @@ def _photon_flux_per_bin(spec, edges_q):
     # Peak of the temperature response of multilayer EUV channels at 171 and 193 A:
     # Boerner et al. 2012, Sol. Phys. 275, 41, Fig. 9 and Lemen et al. 2012, Sol. Phys. 275, 17,
     # Table 1 (171 A: Fe IX, log T 5.8-5.9; 193 A: Fe XII, log T 6.2) - values from memory.
-    ("sc-euv171", 5.9),
-    ("sc-euv193", 6.2),
+    ("sc-fe9", 5.9),
+    ("sc-fe12", 6.2),
 ])
 def test_euv_channel_response_peaks(table, name, logT_pub):
     resp = load_generic(name).temperature_response(table=table, abundances="coronal", density=1e9 * u.cm**-3)
@@ -83,7 +83,7 @@ def test_response_attrs_units_and_reference_distance(table, sxt):
     assert list(resp.band.values) == ["soft", "hard", "broad", "full"]
     assert u.Unit(resp.attrs["units"]) == u.ct * u.cm**3 / u.s
     assert resp.attrs["reference_distance"] == "1 pc"
-    assert resp.attrs["instrument"] == "sc-sxt"
+    assert resp.attrs["instrument"] == "sc-softx"
     assert resp.attrs["table_content_hash"] == table.provenance["content_hash"]
     assert resp.attrs["abundance_name"] and "1e+10" in resp.attrs["density_model"]
     assert resp.attrs["ism_absorption"] == "none"
@@ -139,7 +139,7 @@ def test_count_rate_equals_fold_of_synthesized_spectrum(table, sxt):
         folded = sxt.count_rate_from_spectrum(flux, edges, band=b)
         np.testing.assert_allclose(rates[k].value, folded.value, rtol=1e-3)
     # the EUV channel (no redistribution), on a wavelength grid
-    euv = load_generic("sc-euv171")
+    euv = load_generic("sc-fe9")
     wl = np.linspace(3.0, 650.0, 300001) * u.AA
     spec = sc.synthesize(dem, wavelength=wl, edges=True, photons=True, distance=d, table=table)
     folded = euv.count_rate_from_spectrum(_photon_flux_per_bin(spec, wl), wl)
@@ -221,7 +221,7 @@ def test_column_dem_needs_a_solid_angle(table):
     # a distance of 1 cm. That flux comes from synthesize() and is folded through the instrument.
     # (synthesize() of the column DEM itself is not used: it fails on the unit of the
     # intensity, cm-4 instead of cm-2, in synthcorona.synthesis._output_scale.)
-    euv = load_generic("sc-euv193")
+    euv = load_generic("sc-fe12")
     col = sc.GaussianDEM(6.2, 0.1, 1e27 * u.cm**-5)
     omega = (0.6 * u.arcsec) ** 2
     r = euv.count_rate(col, solid_angle=omega, band="total", table=table)
@@ -322,7 +322,7 @@ def test_bad_inputs_name_the_argument(table, sxt):
         sxt.count_rate(dem, distance=10 * u.pc, solid_angle=1 * u.sr, table=table)
     with pytest.raises(InputError, match="not a DEM"):
         sxt.count_rate("hot", distance=10 * u.pc, table=table)
-    with pytest.raises(InputError, match="name='sc-nothing' is not a generic instrument; available: sc-sxt"):
+    with pytest.raises(InputError, match="name='sc-nothing' is not a generic instrument; available: sc-softx"):
         load_generic("sc-nothing")
 
 

@@ -232,7 +232,7 @@ class DimmingScenario:
         embedded table, or ``$SYNTHCORONA_TABLE``; see :func:`synthcorona.emissivity.resolve_table`).
     """
 
-    def __init__(self, star, corona, cme, flare=None, instrument="sc-euv171", observation=None, *,
+    def __init__(self, star, corona, cme, flare=None, instrument="sc-fe9", observation=None, *,
                  recovery="refill", upflow_fraction=prof.DEFAULT_UPFLOW_FRACTION, table=None):
         for name, val, cls in (("star", star, Star), ("corona", corona, Corona), ("cme", cme, CME),
                                ("observation", observation, Observation)):

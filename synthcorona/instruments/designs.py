@@ -33,12 +33,13 @@ the package works with no external files. **They are generic designs of our own,
 calibration of any real mission or instrument**; use them to explore what a small
 telescope of that kind would record, never to analyse real data:
 
-* ``sc-sxt`` -- grazing-incidence soft-X-ray telescope (gold, two reflections) with a
+* ``sc-softx`` -- grazing-incidence soft-X-ray telescope (gold, two reflections) with a
   polyimide/Al optical blocking filter and a back-illuminated silicon CCD with Gaussian
   energy resolution; 0.1-10 keV; channel-energy bands soft 0.2-1 keV, hard 1-2.4 keV,
   broad 0.2-2.4 keV, full 0.2-10 keV.
-* ``sc-euv171``, ``sc-euv193``, ``sc-euv211`` -- the three channels of a normal-incidence
-  Mo/Si multilayer EUV imager, centred at 171, 193 and 211 Angstrom, each behind two
+* ``sc-fe9``, ``sc-fe12``, ``sc-fe14`` -- three presets of one parametric narrow-band
+  design: a normal-incidence Mo/Si multilayer telescope tuned to a strong iron line (Fe IX
+  171.07, Fe XII 193.51 and Fe XIV 211.32 Angstrom: peaks at 171, 193 and 211 Angstrom), each behind two
   aluminium filters, with a back-illuminated CCD counting photons; tabulated 20 eV-10 keV
   (620-1.24 Angstrom: below 20 eV the optical constants are not valid for the films); one
   :class:`Instrument` per channel (their effective-area curves differ), no named bands
@@ -72,7 +73,7 @@ __all__ = [
 ]
 
 #: Names of the three channels of the generic multilayer EUV imager.
-GENERIC_EUV_CHANNELS = ("sc-euv171", "sc-euv193", "sc-euv211")
+GENERIC_EUV_CHANNELS = ("sc-fe9", "sc-fe12", "sc-fe14")
 _FWHM_PER_SIGMA = 2.0 * np.sqrt(2.0 * np.log(2.0))
 _GENERIC_NOTE = "generic design of synthcorona, not any real mission's or instrument's calibration"
 
@@ -403,7 +404,7 @@ _EUV_PERIODS_NM = {171: 8.775, 193: 9.998, 211: 11.020}
 _EUV_GRID_MIN = 20.0 * u.eV
 
 
-def _sxt() -> Instrument:
+def _softx() -> Instrument:
     return build_instrument(
         mirror=GrazingMirror("Au", grazing_angle=0.7 * u.deg, roughness=0.5 * u.nm, n_reflections=2),
         filters=[("C22H10N2O5", 200 * u.nm, {"density": 1.42 * u.g / u.cm**3}),   # polyimide
@@ -413,11 +414,15 @@ def _sxt() -> Instrument:
         energy_grid=default_design_grid(0.1 * u.keV, 10 * u.keV, 2e-3),
         bands={"soft": [0.2, 1.0] * u.keV, "hard": [1.0, 2.4] * u.keV, "broad": [0.2, 2.4] * u.keV,
                "full": [0.2, 10.0] * u.keV},
-        name="sc-sxt",
+        name="sc-softx",
         description=("Generic grazing-incidence soft-X-ray telescope with a silicon CCD (" + _GENERIC_NOTE + "): "
                      "gold coating, 2 reflections at 0.7 deg, 120 cm2 geometric area, 200 nm polyimide + 80 nm Al "
                      "blocking filter, back-illuminated CCD (0.1 um dead layer, 40 um depletion, 4 e- read noise)."),
     )
+
+
+#: Preset names of the narrow-band EUV design by peak wavelength (Angstrom): named by the dominant iron ion.
+_EUV_PRESET_NAMES = {171: "sc-fe9", 193: "sc-fe12", 211: "sc-fe14"}
 
 
 def _euv(channel: int) -> Instrument:
@@ -429,8 +434,8 @@ def _euv(channel: int) -> Instrument:
         detector=SiliconDetector(dead_layer=0 * u.nm, depletion_depth=15 * u.um, oxide=5 * u.nm),
         geometric_area=80 * u.cm**2,
         energy_grid=default_design_grid(_EUV_GRID_MIN, 10 * u.keV, 1e-3),
-        name=f"sc-euv{channel}",
-        description=(f"Generic normal-incidence EUV imager, {channel} Angstrom channel (" + _GENERIC_NOTE + "): two "
+        name=_EUV_PRESET_NAMES[channel],
+        description=(f"Generic narrow-band normal-incidence EUV design peaking at {channel} Angstrom (" + _GENERIC_NOTE + "): two "
                      f"Mo/Si multilayer reflections (period {_EUV_PERIODS_NM[channel]} nm, gamma 0.25, 40 bilayers, "
                      "0.5 nm roughness), two 150 nm Al filters (6 nm oxide, 15 % mesh), back-illuminated CCD "
                      "counting photons, 80 cm2 geometric area."),
@@ -451,10 +456,10 @@ def _euvphot() -> Instrument:
 
 
 _GENERIC = {
-    "sc-sxt": (_sxt, "grazing-incidence soft-X-ray telescope with a silicon CCD, 0.1-10 keV, bands soft/hard/broad/full"),
-    "sc-euv171": (functools.partial(_euv, 171), "multilayer EUV imager, channel centred at 171 Angstrom"),
-    "sc-euv193": (functools.partial(_euv, 193), "multilayer EUV imager, channel centred at 193 Angstrom"),
-    "sc-euv211": (functools.partial(_euv, 211), "multilayer EUV imager, channel centred at 211 Angstrom"),
+    "sc-softx": (_softx, "grazing-incidence soft-X-ray telescope with a silicon CCD, 0.1-10 keV, bands soft/hard/broad/full"),
+    "sc-fe9": (functools.partial(_euv, 171), "narrow-band Mo/Si multilayer EUV design tuned to Fe IX, peak 171 Angstrom"),
+    "sc-fe12": (functools.partial(_euv, 193), "narrow-band Mo/Si multilayer EUV design tuned to Fe XII, peak 193 Angstrom"),
+    "sc-fe14": (functools.partial(_euv, 211), "narrow-band Mo/Si multilayer EUV design tuned to Fe XIV, peak 211 Angstrom"),
     "sc-euvphot": (_euvphot, "broadband EUV photometer, Zr/C-filtered silicon photodiode, mainly 60-300 Angstrom"),
 }
 

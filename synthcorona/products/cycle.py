@@ -237,7 +237,7 @@ def _one_channel(name: str, spec):
     ch = resolve_channels(spec)
     if len(ch) != 1:
         raise InputError(f"{name}={spec!r} names {len(ch)} instrument bands ({', '.join(c[0] for c in ch)}); "
-                         "name exactly one, e.g. 'sc-sxt:broad'")
+                         "name exactly one, e.g. 'sc-softx:broad'")
     return ch[0]
 
 
@@ -245,7 +245,7 @@ def _one_channel(name: str, spec):
 class CountConversion:
     """Convert a count rate in one instrument band into flux in another instrument's band.
 
-    ``source`` and ``target``: one instrument band each (``"sc-sxt:broad"``, ``"sc-euv171"``,
+    ``source`` and ``target``: one instrument band each (``"sc-softx:broad"``, ``"sc-fe9"``,
     ``(Instrument, "band")``). ``rate``: optional measured count rate in ``source`` (ct/s).
     ``flux_band``: energy band of the flux (default: the limits of the target band; for a band
     "total", the target instrument's response range). ``absorbed``: flux arriving at the telescope
@@ -307,7 +307,7 @@ def convert_count_rate(rate, dem, source, target, *, nh=None, flux_band=None, ab
     dem : DEM
         The corona (one volume DEM).
     source, target : str or (Instrument, band)
-        One instrument band each (e.g. ``"sc-sxt:broad"``, ``"sc-euv171"``).
+        One instrument band each (e.g. ``"sc-softx:broad"``, ``"sc-fe9"``).
     nh : Quantity [cm-2], optional
         Interstellar column (included in both count rates).
     flux_band : Quantity pair, optional
@@ -354,7 +354,7 @@ def _hardness_pairs(hardness, labels: list[str]) -> list[tuple[str, str]]:
         if isinstance(pair, str):
             h, sep, s = pair.partition("/")
             if not sep:
-                raise InputError(f"hardness[{k}]={pair!r} must be 'hard band/soft band', e.g. 'sc-sxt:hard/sc-sxt:soft'")
+                raise InputError(f"hardness[{k}]={pair!r} must be 'hard band/soft band', e.g. 'sc-softx:hard/sc-softx:soft'")
             pair = (h.strip(), s.strip())
         if not isinstance(pair, (tuple, list)) or len(pair) != 2:
             raise InputError(f"hardness[{k}]={pair!r} must be a (hard, soft) pair of instrument band labels")
