@@ -22,21 +22,20 @@ instrumental FWHM (FWHM = 2 sqrt(2 ln 2) sigma).
 """
 from __future__ import annotations
 
-import astropy.constants as const
 import astropy.units as u
 import numpy as np
 import xarray as xr
 from scipy.special import erf
 
 from .abundances import resolve_abundances
-from .constants import HC_KEV_ANGSTROM, KEV_TO_ERG
+from .constants import AMU_G, C_CGS, HC_KEV_ANGSTROM, K_B_CGS, K_B_KEV, KEV_TO_ERG
 from .emissivity import EmissivityTable, load_emissivity
 from .errors import InputError
 from .spectral import Band, SpectralGrid
 from .validation import as_quantity, check_finite
 
 __all__ = ["synthesize", "band_flux", "luminosity", "radiative_loss", "band_kernel", "emissivity_matrix",
-           "prepare", "PreparedTable", "dem_weights", "band_list"]
+           "prepare", "PreparedTable", "dem_weights", "band_list", "line_sigma"]
 
 _FOUR_PI = 4.0 * np.pi
 _FWHM_TO_SIGMA = 1.0 / (2.0 * np.sqrt(2.0 * np.log(2.0)))
@@ -334,6 +333,62 @@ def _line_bin_contributions(centres, sigma, amp, edges_native, n_bins):
     return out if asc else out[::-1]
 
 
+def _unbroadened_line_bins(e_line: np.ndarray, amp: np.ndarray, grid: SpectralGrid) -> np.ndarray:
+    """Each line's whole flux in the bin holding its energy (delta profiles), in the user's bin order."""
+    edges_e = grid.energy_edges
+    asc = edges_e[-1] > edges_e[0]
+    ee = edges_e if asc else edges_e[::-1]
+    idx = np.searchsorted(ee, e_line, side="right") - 1
+    ok = (idx >= 0) & (idx < grid.n)
+    line_bins = np.bincount(idx[ok], weights=amp[ok], minlength=grid.n)
+    return line_bins if asc else line_bins[::-1]
+
+
+def line_sigma(prep: PreparedTable, lines: np.ndarray, w: np.ndarray, sel: np.ndarray, centres: np.ndarray,
+               unit: u.UnitBase, thermal_broadening: bool, fwhm) -> np.ndarray:
+    """Gaussian sigma of each selected line, in the grid's unit (``centres`` are the line positions in it).
+
+    Thermal Doppler width at the line's EM-weighted formation temperature T_eff:
+    sigma = (lambda / c) sqrt(k T_eff / m_ion) (Rybicki & Lightman 1979, Radiative Processes in
+    Astrophysics, sect. 10.6), with m_ion the element's atomic mass; an instrumental Gaussian of
+    FWHM ``fwhm`` is added in quadrature (sigma = FWHM / (2 sqrt(2 ln 2))).
+    """
+    sigma = np.zeros(centres.size)
+    if thermal_broadening:
+        lt = lines * w[None, :]
+        tot = lt.sum(axis=1)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            t_eff = np.where(tot > 0, (lt @ (10 ** prep.table.logT)) / tot, 10 ** prep.table.logT[0])
+        m = prep.table.mass_amu[prep.table.line_element_index[sel]] * AMU_G
+        v_th = np.sqrt(K_B_CGS * t_eff / m)  # cm/s
+        sigma = np.abs(centres) * v_th / C_CGS
+    if fwhm is not None:
+        f = as_quantity("fwhm", fwhm, unit, equivalencies=None)
+        check_finite("fwhm", f)
+        if np.ndim(f) != 0 or f.value <= 0:
+            raise InputError(f"fwhm={fwhm} must be a single positive value", argument="fwhm")
+        sigma = np.sqrt(sigma ** 2 + (f.value * _FWHM_TO_SIGMA) ** 2)
+    return np.maximum(sigma, 1e-12 * np.abs(centres))
+
+
+def _spectrum_attrs(prep: PreparedTable, q: u.Quantity, kind: str, photons: bool, thermal_broadening: bool, fwhm,
+                    dem) -> dict:
+    """Provenance and description attrs of a synthesized spectrum."""
+    broaden = thermal_broadening or fwhm is not None
+    attrs = prep.attrs()
+    attrs.update({
+        "units": q.unit.to_string(),
+        "quantity": {"luminosity": "spectral luminosity (into 4 pi)", "flux": "spectral flux at the observer",
+                     "intensity": "spectral intensity"}[kind],
+        "photons_or_energy": "photons" if photons else "energy",
+        "binning": "bin-integrated and divided by bin width (flux conserving)",
+        "line_profile": ("thermal Doppler" if thermal_broadening else "") + (
+            f" + Gaussian FWHM {fwhm}" if fwhm is not None else "") if broaden else "delta (all flux in one bin)",
+        "dem": repr(dem),
+    })
+    return attrs
+
+
 def synthesize(dem, wavelength=None, energy=None, table=None, abundances="coronal", density=None, pressure=None,
                distance=None, photons: bool = False, thermal_broadening: bool = False, fwhm=None,
                edges: bool = False) -> xr.DataArray:
@@ -392,33 +447,9 @@ def synthesize(dem, wavelength=None, energy=None, table=None, abundances="corona
     else:
         centres = (e_line[sel] * u.keV).to_value(grid.unit)
     if not broaden:
-        en = e_line[sel]
-        # bin index by energy, robust to user bin order
-        edges_e = grid.energy_edges
-        asc = edges_e[-1] > edges_e[0]
-        ee = edges_e if asc else edges_e[::-1]
-        idx = np.searchsorted(ee, en, side="right") - 1
-        ok = (idx >= 0) & (idx < grid.n)
-        line_bins = np.bincount(idx[ok], weights=amp[ok], minlength=grid.n)
-        if not asc:
-            line_bins = line_bins[::-1]
+        line_bins = _unbroadened_line_bins(e_line[sel], amp, grid)
     else:
-        sigma = np.zeros(centres.size)
-        if thermal_broadening:
-            lt = lines[sel] * w[None, :]
-            tot = lt.sum(axis=1)
-            with np.errstate(invalid="ignore", divide="ignore"):
-                t_eff = np.where(tot > 0, (lt @ (10 ** prep.table.logT)) / tot, 10 ** prep.table.logT[0])
-            m = prep.table.mass_amu[prep.table.line_element_index[sel]] * const.u.to_value(u.g)
-            v_th = np.sqrt(const.k_B.cgs.value * t_eff / m)  # cm/s
-            sigma = np.abs(centres) * v_th / const.c.cgs.value
-        if fwhm is not None:
-            f = as_quantity("fwhm", fwhm, grid.unit, equivalencies=None)
-            check_finite("fwhm", f)
-            if np.ndim(f) != 0 or f.value <= 0:
-                raise InputError(f"fwhm={fwhm} must be a single positive value")
-            sigma = np.sqrt(sigma ** 2 + (f.value * _FWHM_TO_SIGMA) ** 2)
-        sigma = np.maximum(sigma, 1e-12 * np.abs(centres))
+        sigma = line_sigma(prep, lines[sel], w, sel, centres, grid.unit, thermal_broadening, fwhm)
         line_bins = _line_bin_contributions(centres, sigma, amp, grid.native_edges, grid.n)
     spec_bins = spec_bins + line_bins
     scale, extra_unit, kind = _output_scale(em_unit, distance)
@@ -432,17 +463,7 @@ def synthesize(dem, wavelength=None, energy=None, table=None, abundances="corona
         q = q.to(base / u.cm ** 2 / grid.unit)
     else:
         q = q.to(base / grid.unit)
-    attrs = prep.attrs()
-    attrs.update({
-        "units": q.unit.to_string(),
-        "quantity": {"luminosity": "spectral luminosity (into 4 pi)", "flux": "spectral flux at the observer",
-                     "intensity": "spectral intensity"}[kind],
-        "photons_or_energy": "photons" if photons else "energy",
-        "binning": "bin-integrated and divided by bin width (flux conserving)",
-        "line_profile": ("thermal Doppler" if thermal_broadening else "") + (
-            f" + Gaussian FWHM {fwhm}" if fwhm is not None else "") if broaden else "delta (all flux in one bin)",
-        "dem": repr(dem),
-    })
+    attrs = _spectrum_attrs(prep, q, kind, photons, thermal_broadening, fwhm, dem)
     return xr.DataArray(q.value, dims=(gname,), coords={gname: (gname, grid.centres, {"units": grid.unit.to_string()})},
                         attrs=attrs, name="spectrum")
 
@@ -465,7 +486,7 @@ def radiative_loss(temperature, table=None, abundances="coronal", density=None, 
     # C(E) = C(E_max) exp(-(E - E_max)/kT) (Rybicki & Lightman 1979 eq. 5.14b with the Gaunt factor held at its
     # E_max value), integrated analytically: C(E_max) kT. It matters only above ~1e8 K (16 % of the free-free
     # power lies above 50 keV at 3e8 K) and errs by a few per cent of that share (slowly falling Gaunt factor).
-    kt_kev = (10 ** prep.table.logT * u.K * const.k_B).to_value(u.keV)
+    kt_kev = 10 ** prep.table.logT * K_B_KEV
     tail = prep.cont[:, -1] * kt_kev
     lam_nodes = prep.line_power.sum(axis=0) + prep.cont_cum[:, -1] + tail
     if not np.all(prep.valid_T):
