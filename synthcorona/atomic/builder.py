@@ -47,31 +47,26 @@ import uuid
 import numpy as np
 
 from ..cluster import dask_client, scheduler_from_env
+from ..constants import DEFAULT_LOGT_GRID, HC_KEV_ANGSTROM
 from ..errors import InputError
 from ..io.table_file import write_table
 from . import locate
+from .line_selection import ION_PRESENCE, WINDOW_SIGNIFICANCE, WINDOW_TARGET, WINDOW_WIDTH, select_lines_windowed
 
 __all__ = ["BuildSettings", "build_table", "default_elements", "DEFAULT_LOGT", "DEFAULT_LOG_DENSITY",
            "default_energy_grid"]
 
 log = logging.getLogger(__name__)
 
-#: Default temperature grid: log10 T = 4.5 ... 8.5 step 0.05 (81 points).
-DEFAULT_LOGT = np.round(np.arange(4.5, 8.5 + 1e-9, 0.05), 6)
+#: Default temperature grid: log10 T = 4.5 ... 8.5 step 0.05 (81 points), the package's default log T grid.
+DEFAULT_LOGT = DEFAULT_LOGT_GRID
 #: Default electron densities: log10 n_e = 8 ... 12 cm^-3.
 DEFAULT_LOG_DENSITY = np.array([8.0, 9.0, 10.0, 11.0, 12.0])
 #: Elements kept by default: photospheric number abundance >= this (relative to H).
 DEFAULT_MIN_ABUNDANCE = 1e-7
 BUILDER_VERSION = "2"
-#: Lines longward of this (1 eV photons, the low end of the continuum grid) are not stored.
-MAX_WAVELENGTH = 12398.419843320026
-#: Window width, largest dropped share and significance of the window test (see select_lines_windowed).
-WINDOW_WIDTH = 10.0
-WINDOW_TARGET = 0.005
-WINDOW_SIGNIFICANCE = 0.01
-#: Grid points where an ion's total line emissivity is below this fraction of its maximum are not
-#: considered when selecting lines, and its line emissivities there are stored as zero.
-ION_PRESENCE = 1e-5
+#: Lines longward of this (1 eV photons, the low end of the continuum grid) are not stored [Angstrom].
+MAX_WAVELENGTH = HC_KEV_ANGSTROM * 1e3
 #: Line emissivities are computed only where the ion fraction is >= this fraction of its peak (else 0).
 ION_FRACTION_FLOOR = 1e-6
 #: Temperatures per level-population call (memory bound for large two-ion models).
@@ -187,123 +182,15 @@ def _install_pe_cache(temperature_k: np.ndarray, ratio: np.ndarray) -> None:
     fions.proton_electron_ratio = cached
 
 
-def select_lines(eps: np.ndarray, fraction: float) -> np.ndarray:
-    """Boolean mask of lines kept by the per-point cumulative rule (see module doc).
-
-    Parameters
-    ----------
-    eps : ndarray (n_lines, n_points)
-        Line emissivities of one ion at the grid points considered.
-    fraction : float
-        Largest share of the ion's line emission the dropped lines may carry at any point.
-    """
-    if eps.shape[0] == 0 or fraction <= 0:
-        return np.ones(eps.shape[0], dtype=bool)
-    flat = eps.reshape(eps.shape[0], -1)
-    order = np.argsort(flat, axis=0, kind="stable")
-    srt = np.take_along_axis(flat, order, axis=0)
-    cums = np.cumsum(srt, axis=0)
-    droppable_sorted = cums < fraction * cums[-1]
-    droppable = np.empty_like(droppable_sorted)
-    np.put_along_axis(droppable, order, droppable_sorted, axis=0)
-    return ~np.all(droppable, axis=1)
-
-
-def window_sums(wavelength: np.ndarray, eps: np.ndarray, keep: np.ndarray, width: float = WINDOW_WIDTH):
-    """Total and dropped emissivity in the windows [λ_i, λ_i + width) starting at each line.
-
-    ``wavelength`` must be sorted ascending; ``eps`` is (n_lines, n_points).
-    Returns (lo, hi, total, dropped) with total/dropped of shape (n_lines, n_points).
-    """
-    zero = np.zeros((1,) + eps.shape[1:])
-    c_all = np.concatenate([zero, np.cumsum(eps, axis=0)])
-    c_drop = np.concatenate([zero, np.cumsum(eps * (~keep)[:, None], axis=0)])
-    hi = np.searchsorted(wavelength, wavelength + width, side="left")
-    lo = np.arange(wavelength.size)
-    return lo, hi, c_all[hi] - c_all[lo], c_drop[hi] - c_drop[lo]
-
-
-def select_lines_windowed(wavelength: np.ndarray, eps: np.ndarray, fraction: float,
-                          window_fraction: float = WINDOW_TARGET, significance: float = WINDOW_SIGNIFICANCE,
-                          presence: float = ION_PRESENCE) -> np.ndarray:
-    """Lines of one ion to keep: the cumulative rule, then repaired window by window.
-
-    1. Only grid points where the ion's total line emissivity is at least ``presence``
-       times its maximum over the grid are considered (elsewhere the ion is absent).
-    2. :func:`select_lines` with ``fraction``.
-    3. For every window [λ_i, λ_i + 10 Å) and grid point where the window holds at least
-       ``significance`` of the ion's line emission, the strongest dropped lines are
-       restored until the dropped lines carry at most ``window_fraction`` of the window.
-
-    Parameters
-    ----------
-    wavelength : ndarray (n_lines,) in Angstrom
-    eps : ndarray (n_lines, n_density, n_T) in erg cm3 s-1
-    """
-    n = wavelength.size
-    if n == 0 or fraction <= 0:
-        return np.ones(n, dtype=bool)
-    flat = eps.reshape(n, -1)
-    tot = flat.sum(axis=0)
-    if tot.max() <= 0:
-        return np.zeros(n, dtype=bool)
-    present = tot >= presence * tot.max()
-    e = flat[:, present].astype(np.float64)
-    tot = tot[present]
-    order = np.argsort(wavelength, kind="stable")
-    w, e = wavelength[order], e[order]
-    keep = select_lines(e, fraction)
-    for _ in range(10000):
-        lo, hi, w_tot, w_drop = window_sums(w, e, keep)
-        bad = (w_tot >= significance * tot[None, :]) & (w_drop > window_fraction * w_tot)
-        if not bad.any():
-            break
-        # restore, in each violating window, the strongest dropped line at its worst grid point
-        excess = np.where(bad, w_drop - window_fraction * w_tot, -np.inf)
-        for j in np.flatnonzero(bad.any(axis=1)):
-            p = int(np.argmax(excess[j]))
-            seg = np.arange(lo[j], hi[j])
-            cand = seg[~keep[seg]]
-            if cand.size:
-                keep[cand[np.argmax(e[cand, p])]] = True
-    out = np.zeros(n, dtype=bool)
-    out[order] = keep
-    return out
-
-
-def compute_ion(ion_name: str, h5: str, logT: np.ndarray, log_density: np.ndarray, energy: np.ndarray,
-                pe_ratio: np.ndarray, two_ion_max_levels=None) -> dict:
-    """Lines and continua of one ion (worker function; imports fiasco).
-
-    Returns a dict of numpy arrays: ``wavelength`` (Å), ``upper``, ``lower``,
-    ``observed``, ``emissivity`` (n_lines, n_density, n_T) erg cm3 s-1 per unit
-    abundance; ``ff``, ``fb`` (n_T, n_E) and ``tp`` (n_density, n_T, n_E) in
-    erg cm3 s-1 keV-1 per unit abundance; ``Z``, ``stage``, ``mass_amu``, ``ip_ev``.
-    """
-    import warnings
-
+def _ion_lines(ion, ion_name, T, dens, frac, h5, two_ion_max_levels) -> dict:
+    """Bound-bound lines of one ion: wavelengths, level indices, observed flags and contribution functions
+    (n_lines, n_density, n_T) per unit abundance, where the ion exists (worker side; imports fiasco)."""
     import astropy.units as u
     import fiasco
     from fiasco.util.exceptions import MissingDatasetException, MissingIonError
 
-    fiasco.log.setLevel("ERROR")
-    warnings.filterwarnings("ignore")
-    T = 10 ** logT * u.K
-    _install_identity_cache()
-    _install_pe_cache(T.to_value(u.K), pe_ratio)
-    dens = 10 ** log_density * u.cm ** -3
-    ion = fiasco.Ion(ion_name, T, hdf5_dbase_root=h5, abundance=1.0)
-    nT, nn, nE = logT.size, log_density.size, energy.size
-    out = {"Z": ion.atomic_number, "stage": ion.ionization_stage, "mass_amu": ion.mass.to_value(u.u)}
-    try:
-        out["ip_ev"] = ion.ionization_potential.to_value(u.eV)
-    except (MissingDatasetException, KeyError, AttributeError):
-        out["ip_ev"] = np.nan
-    try:
-        frac = ion.ionization_fraction.value
-    except MissingDatasetException:
-        frac = np.zeros(nT)
-    # ---- lines
+    nT, nn = T.size, dens.size
+    out = {}
     wl = np.zeros(0)
     eps = np.zeros((0, nn, nT))
     up = lo = obs = np.zeros(0, dtype=np.int32)
@@ -340,6 +227,16 @@ def compute_ion(ion_name: str, h5: str, logT: np.ndarray, log_density: np.ndarra
         keep = (wl < MAX_WAVELENGTH) & np.any(eps > 0, axis=(1, 2))
         wl, up, lo, obs, eps = wl[keep], up[keep], lo[keep], obs[keep], eps[keep].astype(np.float32)
     out.update(wavelength=wl, upper=up, lower=lo, observed=obs, emissivity=eps, n_all_lines=int(has_lines and bb.sum()))
+    return out
+
+
+def _ion_continua(ion, ion_name, energy, dens, frac) -> dict:
+    """Free-free, free-bound and two-photon continua of one ion per unit abundance, erg cm3 s-1 keV-1:
+    ``ff``, ``fb`` (n_T, n_E) and ``tp`` (n_density, n_T, n_E) (worker side; imports fiasco)."""
+    import astropy.units as u
+    from fiasco.util.exceptions import MissingDatasetException, MissingIonError
+
+    nT, nn, nE = frac.size, dens.size, energy.size
     # ---- continua, per keV: eps_E = eps_lambda * lambda / E
     wave = (energy * u.keV).to(u.AA, equivalencies=u.spectral())
     jac = (wave.to_value(u.AA) / energy)  # Angstrom per keV
@@ -367,7 +264,43 @@ def compute_ion(ion_name: str, h5: str, logT: np.ndarray, log_density: np.ndarra
     for arr in (ff, fb, tp):
         arr[~np.isfinite(arr)] = 0.0
         np.clip(arr, 0.0, None, out=arr)
-    out.update(ff=ff, fb=fb, tp=tp)
+    return {"ff": ff, "fb": fb, "tp": tp}
+
+
+def compute_ion(ion_name: str, h5: str, logT: np.ndarray, log_density: np.ndarray, energy: np.ndarray,
+                pe_ratio: np.ndarray, two_ion_max_levels=None) -> dict:
+    """Lines and continua of one ion (worker function; imports fiasco).
+
+    Returns a dict of numpy arrays: ``wavelength`` (Å), ``upper``, ``lower``,
+    ``observed``, ``emissivity`` (n_lines, n_density, n_T) erg cm3 s-1 per unit
+    abundance; ``ff``, ``fb`` (n_T, n_E) and ``tp`` (n_density, n_T, n_E) in
+    erg cm3 s-1 keV-1 per unit abundance; ``Z``, ``stage``, ``mass_amu``, ``ip_ev``.
+    """
+    import warnings
+
+    import astropy.units as u
+    import fiasco
+    from fiasco.util.exceptions import MissingDatasetException
+
+    fiasco.log.setLevel("ERROR")
+    warnings.filterwarnings("ignore")
+    T = 10 ** logT * u.K
+    _install_identity_cache()
+    _install_pe_cache(T.to_value(u.K), pe_ratio)
+    dens = 10 ** log_density * u.cm ** -3
+    ion = fiasco.Ion(ion_name, T, hdf5_dbase_root=h5, abundance=1.0)
+    nT = logT.size
+    out = {"Z": ion.atomic_number, "stage": ion.ionization_stage, "mass_amu": ion.mass.to_value(u.u)}
+    try:
+        out["ip_ev"] = ion.ionization_potential.to_value(u.eV)
+    except (MissingDatasetException, KeyError, AttributeError):
+        out["ip_ev"] = np.nan
+    try:
+        frac = ion.ionization_fraction.value
+    except MissingDatasetException:
+        frac = np.zeros(nT)
+    out.update(_ion_lines(ion, ion_name, T, dens, frac, h5, two_ion_max_levels))
+    out.update(_ion_continua(ion, ion_name, energy, dens, frac))
     return out
 
 
@@ -489,6 +422,71 @@ def _substitution_note(sub: dict, ions: list[str]) -> str:
     return "level-resolved files from an older release: " + "; ".join(used)
 
 
+def _collect_ions(work: pathlib.Path, ions, settings: BuildSettings):
+    """Read the per-ion files in ion-list order and apply the line selection: (results, lines before, lines kept,
+    compute seconds per ion)."""
+    results = {}
+    n_all = n_kept = 0
+    ion_seconds = {}
+    for name in ions:
+        r = dict(np.load(work / "ions" / f"{name}.npz"))
+        eps = r["emissivity"].astype(np.float64)
+        keep = select_lines_windowed(r["wavelength"], eps, settings.line_threshold)
+        n_all += keep.size
+        n_kept += int(keep.sum())
+        eps = eps[keep]
+        if eps.size:
+            tot = eps.sum(axis=0)
+            eps[:, tot < ION_PRESENCE * tot.max()] = 0.0
+        for key in ("wavelength", "upper", "lower", "observed"):
+            r[key] = r[key][keep]
+        r["emissivity"] = eps
+        r["two_ion"] = bool(r.get("two_ion", True))
+        ion_seconds[name] = float(r.get("seconds", np.nan))
+        # fiasco's Ion.free_free is per steradian (Phillips et al. 2008, eq. 4.114), unlike its free_bound,
+        # two_photon and contribution_function, which are into 4 pi: bring it to 4 pi.
+        r["ff"] = r["ff"] * FF_TO_FOUR_PI
+        results[name] = r
+    return results, n_all, n_kept, ion_seconds
+
+
+def _table_attrs(src, ions, elements, settings: BuildSettings, results, n_all, n_kept, timings, ion_seconds,
+                 t_start) -> dict:
+    """Provenance attrs of a built table: CHIANTI source and substitutions, fiasco version, line selection,
+    timing."""
+    import fiasco
+
+    return {
+        "chianti_version": src.version,
+        "chianti_origin": src.origin,
+        "chianti_provenance": src.provenance_note or "no PROVENANCE.md found beside the database",
+        "chianti_substituted_ions": _substitution_note(locate.substituted_ions(src), ions),
+        "fiasco_version": fiasco.__version__,
+        "ioneq": "chianti (CHIANTI default equilibrium file chianti.ioneq of the database above)",
+        "proton_electron_ratio": "fiasco.proton_electron_ratio (Young et al. 2003 eq. 7), fiasco default "
+                                 "abundance file, summed over the elements of this table, computed once per grid",
+        "line_threshold": settings.line_threshold,
+        "line_selection": (f"synthcorona.atomic.builder.select_lines_windowed: per ion, dropped lines carry < "
+                           f"line_threshold of the ion's line emission at every grid point where the ion is present "
+                           f"(total >= {ION_PRESENCE:g} of its maximum; elsewhere stored as 0), and < {WINDOW_TARGET:g} "
+                           f"of any {WINDOW_WIDTH:g} A window holding >= {WINDOW_SIGNIFICANCE:g} of the ion's line "
+                           f"emission; lines longward of {MAX_WAVELENGTH:.1f} A are not stored"),
+        "lines_kept": f"{n_kept} of {n_all}",
+        "build_date": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+        "builder_version": BUILDER_VERSION,
+        "elements": " ".join(elements),
+        "ions": " ".join(ions),
+        "two_ion_model": ("fiasco two-ion level populations where CHIANTI has the data"
+                          + ("" if settings.two_ion_max_levels is None else
+                             f" and the two ions have <= {settings.two_ion_max_levels} levels together")
+                          + "; single-ion model for: " + (" ".join(n for n in ions if not results[n]["two_ion"])
+                                                          or "none")),
+        "build_seconds_per_ion": json.dumps({k: round(timings[k], 2) for k in ions if k in timings}),
+        "ion_compute_seconds": json.dumps({k: round(v, 2) for k, v in ion_seconds.items()}),
+        "build_wall_seconds_this_run": round(time.perf_counter() - t_start, 1),
+    }
+
+
 def build_table(output, chianti=None, settings: BuildSettings | None = None, jobs: int = 1,
                 work_dir=None, progress: bool = True, scheduler=None, retries: int = 2,
                 **kwargs) -> pathlib.Path:
@@ -563,55 +561,6 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
         with dask_client(scheduler if scheduler is not None else "local", n_workers=n_local) as client:
             timings = _run_dask(todo, bar, client, int(retries))
     bar.close()
-    results = {}
-    n_all = n_kept = 0
-    ion_seconds = {}
-    for name in ions:
-        r = dict(np.load(work / "ions" / f"{name}.npz"))
-        eps = r["emissivity"].astype(np.float64)
-        keep = select_lines_windowed(r["wavelength"], eps, settings.line_threshold)
-        n_all += keep.size
-        n_kept += int(keep.sum())
-        eps = eps[keep]
-        if eps.size:
-            tot = eps.sum(axis=0)
-            eps[:, tot < ION_PRESENCE * tot.max()] = 0.0
-        for key in ("wavelength", "upper", "lower", "observed"):
-            r[key] = r[key][keep]
-        r["emissivity"] = eps
-        r["two_ion"] = bool(r.get("two_ion", True))
-        ion_seconds[name] = float(r.get("seconds", np.nan))
-        # fiasco's Ion.free_free is per steradian (Phillips et al. 2008, eq. 4.114), unlike its free_bound,
-        # two_photon and contribution_function, which are into 4 pi: bring it to 4 pi.
-        r["ff"] = r["ff"] * FF_TO_FOUR_PI
-        results[name] = r
-    attrs = {
-        "chianti_version": src.version,
-        "chianti_origin": src.origin,
-        "chianti_provenance": src.provenance_note or "no PROVENANCE.md found beside the database",
-        "chianti_substituted_ions": _substitution_note(locate.substituted_ions(src), ions),
-        "fiasco_version": fiasco.__version__,
-        "ioneq": "chianti (CHIANTI default equilibrium file chianti.ioneq of the database above)",
-        "proton_electron_ratio": "fiasco.proton_electron_ratio (Young et al. 2003 eq. 7), fiasco default "
-                                 "abundance file, summed over the elements of this table, computed once per grid",
-        "line_threshold": settings.line_threshold,
-        "line_selection": (f"synthcorona.atomic.builder.select_lines_windowed: per ion, dropped lines carry < "
-                           f"line_threshold of the ion's line emission at every grid point where the ion is present "
-                           f"(total >= {ION_PRESENCE:g} of its maximum; elsewhere stored as 0), and < {WINDOW_TARGET:g} "
-                           f"of any {WINDOW_WIDTH:g} A window holding >= {WINDOW_SIGNIFICANCE:g} of the ion's line "
-                           f"emission; lines longward of {MAX_WAVELENGTH:.1f} A are not stored"),
-        "lines_kept": f"{n_kept} of {n_all}",
-        "build_date": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
-        "builder_version": BUILDER_VERSION,
-        "elements": " ".join(elements),
-        "ions": " ".join(ions),
-        "two_ion_model": ("fiasco two-ion level populations where CHIANTI has the data"
-                          + ("" if settings.two_ion_max_levels is None else
-                             f" and the two ions have <= {settings.two_ion_max_levels} levels together")
-                          + "; single-ion model for: " + (" ".join(n for n in ions if not results[n]["two_ion"])
-                                                          or "none")),
-        "build_seconds_per_ion": json.dumps({k: round(timings[k], 2) for k in ions if k in timings}),
-        "ion_compute_seconds": json.dumps({k: round(v, 2) for k, v in ion_seconds.items()}),
-        "build_wall_seconds_this_run": round(time.perf_counter() - t_start, 1),
-    }
+    results, n_all, n_kept, ion_seconds = _collect_ions(work, ions, settings)
+    attrs = _table_attrs(src, ions, elements, settings, results, n_all, n_kept, timings, ion_seconds, t_start)
     return write_table(output, results, settings, elements, attrs)
