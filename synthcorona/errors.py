@@ -8,13 +8,14 @@ file and key), so that callers decide what to do from fields, never from the mes
 * :class:`TableFileError` -- an emissivity table file is missing, corrupted or foreign.
 * :class:`ChiantiNotFoundError` -- no usable CHIANTI database was found.
 * :class:`InstrumentFileError` / :class:`InstrumentFileWarning` -- instrument response files.
+* :class:`DependencyError` -- an optional dependency (fiasco for the table builder) is not installed.
 * :class:`BracketError` -- a root search was given a bracket that does not straddle the target.
 * :class:`CliError` -- a user mistake on the command line (one line, exit status 2).
 """
 from __future__ import annotations
 
 __all__ = ["InputError", "ScenarioError", "TableFileError", "ChiantiNotFoundError", "InstrumentFileError",
-           "InstrumentFileWarning", "BracketError", "CliError"]
+           "InstrumentFileWarning", "BracketError", "CliError", "DependencyError"]
 
 
 class InputError(ValueError):
@@ -51,6 +52,23 @@ class InstrumentFileError(InputError):
 
 class InstrumentFileWarning(UserWarning):
     """A response file is readable but suspicious (e.g. FITS checksum mismatch)."""
+
+
+class DependencyError(InputError):
+    """An optional dependency needed by one part of synthcorona is not installed.
+
+    Attributes
+    ----------
+    package : str
+        The distribution that is missing (e.g. ``"fiasco"``).
+    requirement : str
+        What it needs to install (e.g. ``"fiasco 0.8.2 on Python >= 3.12"``).
+    """
+
+    def __init__(self, message: str, *, package: str, requirement: str = ""):
+        super().__init__(message, argument=None)
+        self.package = package
+        self.requirement = requirement
 
 
 class BracketError(InputError):

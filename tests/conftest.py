@@ -33,7 +33,18 @@ def chianti_path():
 
 
 @pytest.fixture(scope="session")
-def small_build(chianti_path, tmp_path_factory):
+def fiasco_ready():
+    """Skip unless fiasco (0.8.2, Python >= 3.12) is installed: the table builder and the direct fiasco checks
+    need it; everything else runs without it."""
+    from synthcorona.atomic.locate import FIASCO_REQUIREMENT, fiasco_available
+
+    if not fiasco_available():
+        pytest.skip(f"needs {FIASCO_REQUIREMENT} (the table builder); this is Python "
+                    f"{'.'.join(map(str, __import__('sys').version_info[:3]))} without fiasco")
+
+
+@pytest.fixture(scope="session")
+def small_build(fiasco_ready, chianti_path, tmp_path_factory):
     """Per-ion work directory and the thresholded small table built from CHIANTI."""
     from synthcorona.atomic.builder import BuildSettings, build_table
 

@@ -520,7 +520,13 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
         ``$SYNTHCORONA_SCHEDULER``, else decided by ``jobs``.
     retries : int
         Times an ion is run again after its task failed or its worker died (>= 0).
+
+    Raises
+    ------
+    DependencyError
+        fiasco (0.8.2, Python >= 3.12) is not installed.
     """
+    locate.require_fiasco("building an emissivity table")
     import fiasco
     from tqdm import tqdm
 

@@ -19,7 +19,7 @@ import pathlib
 import tarfile
 from dataclasses import dataclass
 
-from ..errors import ChiantiNotFoundError
+from ..errors import ChiantiNotFoundError, DependencyError
 from ..settings import CHIANTI_ENV as ENV_VAR
 from ..settings import chianti_path
 
@@ -146,6 +146,29 @@ def substituted_ions(source: ChiantiSource) -> dict:
         if len(bits) == 3 and tag != own and bits[1].startswith(bits[0] + "_"):
             out.setdefault(bits[1], tag)
     return out
+
+
+#: What the table builder needs (fiasco 0.8.2 supports Python >= 3.12 only).
+FIASCO_REQUIREMENT = "fiasco 0.8.2, which needs Python >= 3.12"
+
+
+def fiasco_available() -> bool:
+    """True if fiasco can be imported here (checked without importing it: its import makes a network call)."""
+    import importlib.util
+
+    return importlib.util.find_spec("fiasco") is not None
+
+
+def require_fiasco(what: str = "the table builder") -> None:
+    """Raise :class:`~synthcorona.errors.DependencyError` naming ``what`` if fiasco is not installed."""
+    if not fiasco_available():
+        import sys
+
+        v = ".".join(map(str, sys.version_info[:2]))
+        raise DependencyError(
+            f"{what} needs {FIASCO_REQUIREMENT}; this is Python {v} without fiasco. Use a Python 3.12 environment "
+            "(e.g. 'python3.12 -m venv .venv312 && .venv312/bin/pip install .'); everything else in synthcorona "
+            "works without it, on the embedded table.", package="fiasco", requirement=FIASCO_REQUIREMENT)
 
 
 def find_chianti(path=None) -> ChiantiSource:
