@@ -239,26 +239,29 @@ def test_dict_abundances_missing_elements_are_stated(table, sxt):
 
 
 # ----------------------------------------------------------------------------- bad input
-def test_bad_inputs_name_the_argument(table, sxt):
-    dem = sc.GaussianDEM(6.5, 0.2, 1e51 * u.cm**-3)
-    with pytest.raises(InputError, match=r"distance=.*valid range \(0, inf\) pc"):
-        sxt.count_rate(dem, distance=0 * u.pc, table=table)
-    with pytest.raises(InputError, match="distance is required"):
-        sxt.count_rate(dem, table=table)
-    with pytest.raises(u.UnitsError, match="distance"):
-        sxt.count_rate(dem, distance=10, table=table)
-    with pytest.raises(InputError, match=r"nh=\[-1\.e\+20\] cm\^-2 is outside the valid range \[0, 1e\+24\]"):
-        sxt.count_rate(dem, distance=10 * u.pc, nh=-1e20 * u.cm**-2, table=table)
-    with pytest.raises(InputError, match=r"band 'ultra' is not defined .*defined bands: \['broad', 'full', 'hard', 'soft'\]"):
-        sxt.count_rate(dem, distance=10 * u.pc, band="ultra", table=table)
+DEM = sc.GaussianDEM(6.5, 0.2, 1e51 * u.cm**-3)
+
+
+@pytest.mark.parametrize("exc, match, dem, kwargs", [
+    (InputError, r"distance=.*valid range \(0, inf\) pc", DEM, {"distance": 0 * u.pc}),
+    (InputError, "distance is required", DEM, {}),
+    (u.UnitsError, "distance", DEM, {"distance": 10}),
+    (InputError, r"nh=\[-1\.e\+20\] cm\^-2 is outside the valid range \[0, 1e\+24\]", DEM,
+     {"distance": 10 * u.pc, "nh": -1e20 * u.cm**-2}),
+    (InputError, r"band 'ultra' is not defined .*defined bands: \['broad', 'full', 'hard', 'soft'\]", DEM,
+     {"distance": 10 * u.pc, "band": "ultra"}),
+    (InputError, "solid_angle", sc.GaussianDEM(6.5, 0.2, 1e27 * u.cm**-5), {}),
+    (InputError, "solid_angle applies to a column DEM", DEM, {"distance": 10 * u.pc, "solid_angle": 1 * u.sr}),
+    (InputError, "not a DEM", "hot", {"distance": 10 * u.pc}),
+])
+def test_bad_count_rate_inputs_name_the_argument(table, sxt, exc, match, dem, kwargs):
+    with pytest.raises(exc, match=match):
+        sxt.count_rate(dem, table=table, **kwargs)
+
+
+def test_bad_band_and_instrument_names(table, sxt):
     with pytest.raises(InputError, match="band 'ultra'"):
         sxt.temperature_response(table=table, bands=["soft", "ultra"])
-    with pytest.raises(InputError, match="solid_angle"):
-        sxt.count_rate(sc.GaussianDEM(6.5, 0.2, 1e27 * u.cm**-5), table=table)
-    with pytest.raises(InputError, match="solid_angle applies to a column DEM"):
-        sxt.count_rate(dem, distance=10 * u.pc, solid_angle=1 * u.sr, table=table)
-    with pytest.raises(InputError, match="not a DEM"):
-        sxt.count_rate("hot", distance=10 * u.pc, table=table)
     with pytest.raises(InputError, match="name='sc-nothing' is not a generic instrument; available: sc-softx"):
         load_generic("sc-nothing")
 

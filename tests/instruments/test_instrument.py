@@ -300,26 +300,24 @@ def test_bad_instrument_definitions(lo, hi, area, match):
         Instrument("bad", lo * u.keV, hi * u.keV, area * u.cm**2)
 
 
-def test_bad_units_and_shapes():
-    inst, *_ = _stepped_instrument()
-    with pytest.raises(u.UnitsError, match="area"):
-        Instrument("x", [1.0] * u.keV, [2.0] * u.keV, [1.0])
-    with pytest.raises(u.UnitsError, match="photon_flux has no units"):
-        inst.fold(np.ones(FINE.size - 1), FINE * u.keV)
-    with pytest.raises(u.UnitsError, match="multiplied by the bin widths"):
-        inst.fold(np.ones(FINE.size - 1) * PH / u.keV, FINE * u.keV)
-    with pytest.raises(InputError, match="last axis must have 20000"):
-        inst.fold(np.ones(10) * PH, FINE * u.keV)
-    with pytest.raises(InputError, match=">= 0"):
-        inst.fold(-np.ones(FINE.size - 1) * PH, FINE * u.keV)
-    with pytest.raises(u.UnitsError, match="energy_edges"):
-        inst.fold(np.ones(FINE.size - 1) * PH, FINE * u.s)
-    with pytest.raises(InputError, match="not defined"):
-        inst.count_rate_from_spectrum(_flat(FINE), FINE * u.keV, band="nope")
-    with pytest.raises(InputError, match="does not overlap"):
-        inst.with_bands(far=[50, 60] * u.keV)
-    with pytest.raises(InputError, match="no named bands"):
-        inst.band_matrix(FINE * u.keV)
+_STEPPED = _stepped_instrument()[0]
+
+
+@pytest.mark.parametrize("exc, match, call", [
+    (u.UnitsError, "area", lambda inst: Instrument("x", [1.0] * u.keV, [2.0] * u.keV, [1.0])),
+    (u.UnitsError, "photon_flux has no units", lambda inst: inst.fold(np.ones(FINE.size - 1), FINE * u.keV)),
+    (u.UnitsError, "multiplied by the bin widths",
+     lambda inst: inst.fold(np.ones(FINE.size - 1) * PH / u.keV, FINE * u.keV)),
+    (InputError, "last axis must have 20000", lambda inst: inst.fold(np.ones(10) * PH, FINE * u.keV)),
+    (InputError, ">= 0", lambda inst: inst.fold(-np.ones(FINE.size - 1) * PH, FINE * u.keV)),
+    (u.UnitsError, "energy_edges", lambda inst: inst.fold(np.ones(FINE.size - 1) * PH, FINE * u.s)),
+    (InputError, "not defined", lambda inst: inst.count_rate_from_spectrum(_flat(FINE), FINE * u.keV, band="nope")),
+    (InputError, "does not overlap", lambda inst: inst.with_bands(far=[50, 60] * u.keV)),
+    (InputError, "no named bands", lambda inst: inst.band_matrix(FINE * u.keV)),
+])
+def test_bad_units_and_shapes(exc, match, call):
+    with pytest.raises(exc, match=match):
+        call(_STEPPED)
 
 
 def test_bad_redistribution():

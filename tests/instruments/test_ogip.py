@@ -262,19 +262,21 @@ def test_missing_file_and_wrong_kind(tmp_path):
     assert isinstance(InstrumentFileError("x"), InputError)
 
 
-def test_malformed_rmf(tmp_path):
+@pytest.mark.parametrize("fname, rows, channels, ebounds, match", [
     # channel outside EBOUNDS
-    p = _rmf_by_hand(tmp_path / "oob.rmf", [(1, 3, 2, [0.5, 0.5])], [1, 2, 3], tlmin=1)
-    with pytest.raises(InstrumentFileError, match=r"oob.rmf.*addresses channel 3..4, outside the channels 1..3"):
-        read_rmf(p)
+    ("oob.rmf", [(1, 3, 2, [0.5, 0.5])], [1, 2, 3], True, r"oob.rmf.*addresses channel 3..4, outside the channels 1..3"),
     # MATRIX shorter than the groups
-    p = _rmf_by_hand(tmp_path / "short.rmf", [(1, 1, 3, [0.5, 0.5])], [1, 2, 3], tlmin=1)
-    with pytest.raises(InstrumentFileError, match=r"short.rmf.*MATRIX has 2 elements but its groups"):
-        read_rmf(p)
+    ("short.rmf", [(1, 1, 3, [0.5, 0.5])], [1, 2, 3], True, r"short.rmf.*MATRIX has 2 elements but its groups"),
     # EBOUNDS missing
-    p = _rmf_by_hand(tmp_path / "noeb.rmf", [(1, 1, 1, [1.0])], [1], tlmin=1, ebounds=False)
-    with pytest.raises(InstrumentFileError, match=r"noeb.rmf' has no EBOUNDS extension"):
+    ("noeb.rmf", [(1, 1, 1, [1.0])], [1], False, r"noeb.rmf' has no EBOUNDS extension"),
+])
+def test_malformed_rmf(tmp_path, fname, rows, channels, ebounds, match):
+    p = _rmf_by_hand(tmp_path / fname, rows, channels, tlmin=1, ebounds=ebounds)
+    with pytest.raises(InstrumentFileError, match=match):
         read_rmf(p)
+
+
+def test_rmf_missing_column(tmp_path):
     # a required column missing
     with fits.open(_rmf_by_hand(tmp_path / "ok.rmf", [(1, 1, 1, [1.0])], [1], tlmin=1)) as h:
         cols = [c for c in h["MATRIX"].columns if c.name != "N_GRP"]
