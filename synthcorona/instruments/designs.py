@@ -60,6 +60,7 @@ from dataclasses import dataclass, field
 import astropy.units as u
 import numpy as np
 import scipy.sparse as sp
+import xraydb
 from scipy.special import ndtr
 
 from ..errors import InputError
@@ -371,7 +372,7 @@ def build_instrument(mirror=None, filters=(), detector=None, geometric_area=1.0 
         },
         "method": ("A = A_geom R^n prod(T_filter) QE (synthcorona.instruments.designs); optical constants of "
                    "Chantler 2000 (JPCRD 29, 597) via xraydb"),
-        "xraydb_version": getattr(optics.xraydb, "__version__", "unknown"),
+        "xraydb_version": getattr(xraydb, "__version__", "unknown"),
     }
     desc = description or f"physics-built design '{name}'"
     if det is None or det.read_noise is None:
