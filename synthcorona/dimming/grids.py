@@ -46,7 +46,7 @@ def _axis(name, value, unit):
 
 
 def _instrument_label(x):
-    from ..instruments.response import Instrument
+    from ..instruments.instrument import Instrument
 
     if isinstance(x, str):
         return x
@@ -136,7 +136,7 @@ def _portable(x):
     """A copy of an instrument entry that can be sent to worker processes (response caches left behind)."""
     from collections import OrderedDict
 
-    from ..instruments.response import Instrument
+    from ..instruments.instrument import Instrument
 
     if isinstance(x, Instrument):
         c = copy.copy(x)

@@ -40,7 +40,7 @@ largest removable mass at that density.
 Depth per band
 --------------
 With the temperature response :math:`K_b(T)` of band :math:`b`
-(:meth:`synthcorona.instruments.response.Instrument.temperature_response`, interstellar
+(:meth:`synthcorona.instruments.instrument.Instrument.temperature_response`, interstellar
 absorption included, since :math:`N_H` changes the relative weight of temperatures within the
 band), the fractional depth is
 

@@ -6,7 +6,7 @@ through instrument temperature responses:
 
 .. math:: r_b(t) = (1\,\mathrm{pc}/d)^2 \sum_i W_i(t)\, K_b(T_i),
 
-with :math:`K_b` from :meth:`synthcorona.instruments.response.Instrument.temperature_response`
+with :math:`K_b` from :meth:`synthcorona.instruments.instrument.Instrument.temperature_response`
 (counts s-1 per cm-3 of EM at 1 pc) on the emissivity table's log T grid :math:`T_i`, and
 :math:`W_i(t)` the user's EM re-gridded onto that grid.
 
@@ -218,7 +218,7 @@ def lightcurve_from_em_series(em, instrument, distance, nh=None, bands=None, tab
 
     if bands is not None:
         from ..instruments.designs import load_generic
-        from ..instruments.response import Instrument
+        from ..instruments.instrument import Instrument
 
         if isinstance(instrument, str):
             instrument = load_generic(instrument)

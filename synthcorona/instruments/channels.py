@@ -25,8 +25,8 @@ def resolve_channels(instruments) -> list[tuple[str, Any, str]]:
     a tuple ``(instrument, band)``, a list of these, or a dict label -> any of these (one band each).
     Labels are ``"name:band"``, or ``"name"`` for the band "total".
     """
-    from .designs import load_instrument
-    from .response import Instrument
+    from .instrument import Instrument
+    from .readers import load_instrument
 
     def inst_of(x):
         if isinstance(x, Instrument):

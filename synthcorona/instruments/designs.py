@@ -6,12 +6,14 @@ silicon detector and a geometric collecting area -- into an effective-area curve
 
     A(E) = A_geom * R_mirror(E)^n_reflections * prod_k T_filter,k(E) * QE(E)
 
-(the usual first-order model of a telescope's throughput, e.g. Boerner et al. 2012,
-Sol. Phys. 275, 41, eq. 1), computed with :mod:`synthcorona.instruments.optics`:
+(geometric area times mirror reflectivities times filter transmissions times detector
+quantum efficiency: the generic first-order model of a telescope's throughput, common
+practice with no single source), computed with :mod:`synthcorona.instruments.multilayer`
+and :mod:`synthcorona.instruments.optics`:
 
 * grazing mirrors: Fresnel reflectivity with a Névot-Croce roughness factor
   (Born & Wolf, "Principles of Optics", sect. 1.5; Névot & Croce 1980, Rev. Phys. Appl. 15, 761);
-* multilayers: Parratt (1954, Phys. Rev. 95, 359) recursion;
+* multilayers: Parratt (1954, Phys. Rev. 95, 359) recursion with Névot-Croce roughness factors;
 * filters: Beer-Lambert attenuation;
 * silicon detectors: the slab model of Janesick (2001, "Scientific Charge-Coupled
   Devices", SPIE Press, ch. 2);
@@ -52,24 +54,23 @@ from __future__ import annotations
 
 import dataclasses
 import functools
-import os
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import astropy.units as u
 import numpy as np
 import scipy.sparse as sp
+import xraydb
 from scipy.special import ndtr
 
 from ..errors import InputError
 from ..validation import as_quantity, check_range
-from . import optics
-from .response import Instrument
+from . import multilayer, optics
+from .instrument import Instrument
 
 __all__ = [
     "GrazingMirror", "MultilayerMirror", "SiliconDetector", "build_instrument", "default_design_grid",
-    "list_generic", "load_generic", "load_instrument", "GENERIC_EUV_CHANNELS",
+    "list_generic", "load_generic", "GENERIC_EUV_CHANNELS",
 ]
 
 #: Names of the three channels of the generic multilayer EUV imager.
@@ -119,7 +120,7 @@ class GrazingMirror:
     """Single-layer grazing-incidence mirror coating, met ``n_reflections`` times.
 
     ``R(E)^n`` with ``R`` the Fresnel reflectivity of a thick coating with Névot-Croce
-    roughness (:func:`synthcorona.instruments.optics.mirror_reflectivity`). A Wolter-type
+    roughness (:func:`synthcorona.instruments.multilayer.mirror_reflectivity`). A Wolter-type
     telescope (paraboloid + hyperboloid) has two reflections at about the same grazing angle.
 
     Parameters
@@ -149,7 +150,7 @@ class GrazingMirror:
 
     def reflectance(self, grid) -> np.ndarray:
         """Mirror factor ``R^n`` (dimensionless ndarray) on a grid of energies or wavelengths."""
-        r = optics.mirror_reflectivity(grid, self.material, self.grazing_angle, roughness=self.roughness,
+        r = multilayer.mirror_reflectivity(grid, self.material, self.grazing_angle, roughness=self.roughness,
                                        density=self.density).value
         _check_reflectivity(r, grid, "grazing mirror")
         return r ** self.n_reflections
@@ -159,7 +160,7 @@ class GrazingMirror:
 class MultilayerMirror:
     """Periodic two-material multilayer at (near-)normal incidence, met ``n_reflections`` times.
 
-    ``R(E)^n`` with ``R`` from :func:`synthcorona.instruments.optics.multilayer_reflectivity`
+    ``R(E)^n`` with ``R`` from :func:`synthcorona.instruments.multilayer.multilayer_reflectivity`
     (Parratt 1954, Phys. Rev. 95, 359; Névot & Croce 1980, Rev. Phys. Appl. 15, 761).
     A two-mirror (Ritchey-Chrétien-like) normal-incidence telescope has two reflections.
 
@@ -197,7 +198,7 @@ class MultilayerMirror:
 
     def reflectance(self, grid) -> np.ndarray:
         """Mirror factor ``R^n`` (dimensionless ndarray) on a grid of energies or wavelengths."""
-        r = optics.multilayer_reflectivity(grid, self.period, self.gamma, self.n_bilayers, materials=self.materials,
+        r = multilayer.multilayer_reflectivity(grid, self.period, self.gamma, self.n_bilayers, materials=self.materials,
                                            substrate=self.substrate, roughness=self.roughness,
                                            angle=self.angle).value
         _check_reflectivity(r, grid, "multilayer")
@@ -371,7 +372,7 @@ def build_instrument(mirror=None, filters=(), detector=None, geometric_area=1.0 
         },
         "method": ("A = A_geom R^n prod(T_filter) QE (synthcorona.instruments.designs); optical constants of "
                    "Chantler 2000 (JPCRD 29, 597) via xraydb"),
-        "xraydb_version": getattr(optics.xraydb, "__version__", "unknown"),
+        "xraydb_version": getattr(xraydb, "__version__", "unknown"),
     }
     desc = description or f"physics-built design '{name}'"
     if det is None or det.read_noise is None:
@@ -485,26 +486,3 @@ def load_generic(name: str) -> Instrument:
     if not isinstance(name, str) or name not in _GENERIC:
         raise InputError(f"name={name!r} is not a generic instrument; available: {', '.join(_GENERIC)}")
     return _built(name)
-
-
-def load_instrument(path, rmf=None, name: str | None = None, bands=None) -> Instrument:
-    """Load an instrument from a response file, or a ready-made generic instrument by name.
-
-    A string that is not an existing file but is the name of a generic instrument
-    (:func:`list_generic`) returns :func:`load_generic` (with ``bands`` added if given);
-    everything else goes to :func:`synthcorona.instruments.readers.load_instrument`
-    (OGIP ARF/RMF, area tables, CHIANTI ``.area`` files).
-    """
-    from .readers import load_instrument as _read
-
-    if isinstance(path, str) and path in _GENERIC and not Path(path).exists():
-        if rmf is not None:
-            raise InputError(f"rmf= cannot be combined with the generic instrument '{path}'")
-        inst = load_generic(path)
-        if bands:
-            inst = inst.with_bands(**bands)
-        return inst
-    if isinstance(path, (str, os.PathLike)) and not Path(os.fspath(path)).expanduser().exists():
-        raise InputError(f"path={os.fspath(path)!r} is neither an existing response file nor a generic instrument "
-                         f"name; generic instruments: {', '.join(_GENERIC)}")
-    return _read(path, rmf=rmf, name=name, bands=bands)

@@ -30,8 +30,8 @@ midpoint rule away from absorption edges to ~(1e-3 d ln T/d ln E)^2 / 24.
 """
 from __future__ import annotations
 
+import hashlib
 import json
-import weakref
 from collections import OrderedDict
 
 import astropy.units as u
@@ -42,19 +42,24 @@ from ..absorption import ISM_ENERGY_MAX, ISM_ENERGY_MIN, NH_MAX, ism_cross_secti
 from ..abundances import resolve_abundances
 from ..constants import HC_KEV_ANGSTROM, KEV_TO_ERG, PARSEC_CM
 from ..errors import InputError
-from ..synthesis import dem_weights, luminosity, prepare
+from ..spectral import Band
+from ..synthesis import band_list, dem_weights, luminosity, prepare
 from ..validation import as_quantity, check_range
 
 __all__ = [
-    "ABSORPTION_MAX_REL_WIDTH", "REFERENCE_DISTANCE", "binned_emissivity", "observed_flux", "band_luminosity",
-    "hardness_ratio", "hardness_ratio_curve", "counts_to_flux",
+    "ABSORPTION_MAX_REL_WIDTH", "REFERENCE_DISTANCE", "FOUR_PI_PC2", "binned_emissivity", "absorbed_band_kernel",
+    "nh_value", "distance_cm", "observed_flux", "band_luminosity", "hardness_ratio", "hardness_ratio_curve",
+    "counts_to_flux",
 ]
 
 #: Largest relative bin width (d E / E) used where interstellar absorption is applied (0.1 %).
 ABSORPTION_MAX_REL_WIDTH = 1e-3
 #: Reference distance of temperature responses.
 REFERENCE_DISTANCE = 1.0 * u.pc
-_FOUR_PI_PC2 = 4.0 * np.pi * PARSEC_CM**2
+#: Area of the sphere of the reference distance, 4 pi (1 pc)^2, in cm^2.
+FOUR_PI_PC2 = 4.0 * np.pi * PARSEC_CM**2
+# Caches keyed on the prepared table's content key (PreparedTable.key): a table prepared again with
+# the same content, abundances and density model hits them; a PreparedTable without a key is not cached.
 _CACHE_SIZE = 16
 _MATRIX_CACHE: OrderedDict = OrderedDict()
 _LINE_ORDER_CACHE: dict = {}
@@ -117,30 +122,30 @@ def refine_edges(edges: np.ndarray, max_rel_width: float = ABSORPTION_MAX_REL_WI
 
 def _line_layout(prep):
     """Line energies in ascending order and the matching index order (cached per prepared table)."""
-    key = id(prep)
-    hit = _LINE_ORDER_CACHE.get(key)
-    if hit is not None and hit[0]() is prep:
-        return hit[1], hit[2]
+    key = prep.key
+    hit = _LINE_ORDER_CACHE.get(key) if key is not None else None
+    if hit is not None:
+        return hit
     e = prep.line_energy_kev
     if e.size > 1 and np.all(np.diff(e) <= 0):
         order = slice(None, None, -1)          # wavelengths ascending -> energies descending: a view
     else:
         order = np.argsort(e, kind="stable")
     e_sorted = np.ascontiguousarray(e[order])
-    if len(_LINE_ORDER_CACHE) > _CACHE_SIZE:
-        _LINE_ORDER_CACHE.clear()
-    _LINE_ORDER_CACHE[key] = (weakref.ref(prep), order, e_sorted)
+    if key is not None:
+        if len(_LINE_ORDER_CACHE) > _CACHE_SIZE:
+            _LINE_ORDER_CACHE.clear()
+        _LINE_ORDER_CACHE[key] = (order, e_sorted)
     return order, e_sorted
 
 
 def _line_cross_section(prep, ism_abundances) -> np.ndarray:
     """ISM cross-section (cm^2 per H) at every line energy in ascending order (NaN outside the ISM model's
     range); computed once per (prepared table, ISM abundances) and reused for any N_H and grid."""
-    ikey = ism_key(ism_abundances)
-    key = (id(prep), ikey)
-    hit = _LINE_SIGMA_CACHE.get(key)
-    if hit is not None and hit[0]() is prep:
-        return hit[1]
+    key = (prep.key, ism_key(ism_abundances)) if prep.key is not None else None
+    hit = _LINE_SIGMA_CACHE.get(key) if key is not None else None
+    if hit is not None:
+        return hit
     _, e_sorted = _line_layout(prep)
     lo, hi = ism_range_kev()
     sigma = np.full(e_sorted.shape, np.nan)
@@ -148,9 +153,10 @@ def _line_cross_section(prep, ism_abundances) -> np.ndarray:
     if np.any(inside):
         sigma[inside] = ism_cross_section(e_sorted[inside] * u.keV, ism_abundances).to_value(u.cm**2)
     sigma.setflags(write=False)
-    if len(_LINE_SIGMA_CACHE) > _CACHE_SIZE:
-        _LINE_SIGMA_CACHE.clear()
-    _LINE_SIGMA_CACHE[key] = (weakref.ref(prep), sigma)
+    if key is not None:
+        if len(_LINE_SIGMA_CACHE) > _CACHE_SIZE:
+            _LINE_SIGMA_CACHE.clear()
+        _LINE_SIGMA_CACHE[key] = sigma
     return sigma
 
 
@@ -189,11 +195,13 @@ def binned_emissivity(edges_kev: np.ndarray, prep, photons: bool = True, nh: flo
         raise InputError("energy_edges must be strictly increasing with at least two values")
     nh_eff = None if not nh else float(nh)
     ikey = ism_key(ism_abundances) if nh_eff else None
-    key = (id(prep), hash(edges.tobytes()), edges.size, bool(photons), nh_eff, ikey)
-    hit = _MATRIX_CACHE.get(key)
-    if hit is not None and hit[0]() is prep:
-        _MATRIX_CACHE.move_to_end(key)
-        return hit[1]
+    key = None
+    if prep.key is not None:
+        key = (prep.key, hashlib.blake2b(edges.tobytes(), digest_size=16).hexdigest(), bool(photons), nh_eff, ikey)
+        hit = _MATRIX_CACHE.get(key)
+        if hit is not None:
+            _MATRIX_CACHE.move_to_end(key)
+            return hit
     if nh_eff:
         lo, hi = ism_range_kev()
         if edges[0] < lo * (1 - 1e-9) or edges[-1] > hi * (1 + 1e-9):
@@ -225,21 +233,26 @@ def binned_emissivity(edges_kev: np.ndarray, prep, photons: bool = True, nh: flo
             sums = np.add.reduceat(vals, starts, axis=0)        # (n_occupied, T)
             out[:, idx[starts]] += sums.T
     out.setflags(write=False)
-    _MATRIX_CACHE[key] = (weakref.ref(prep), out)   # weak: never keeps a prepared table alive
-    if len(_MATRIX_CACHE) > _CACHE_SIZE:
-        _MATRIX_CACHE.popitem(last=False)
+    if key is not None:
+        _MATRIX_CACHE[key] = out
+        if len(_MATRIX_CACHE) > _CACHE_SIZE:
+            _MATRIX_CACHE.popitem(last=False)
     return out
 
 
 def _energy_bands(band) -> tuple[np.ndarray, list[str], bool]:
-    """Parse energy bands: (lo, hi) Quantity, (n, 2) Quantity or dict -> ((n, 2) keV, labels, single)."""
-    from ..synthesis import band_list
+    """Energy bands as ((n, 2) keV limits, labels, single).
 
-    single = not isinstance(band, dict) and not (isinstance(band, u.Quantity) and band.ndim == 2)
-    if isinstance(band, tuple) and len(band) == 2 and all(isinstance(b, u.Quantity) and b.isscalar for b in band):
-        band = u.Quantity([band[0], band[1].to(band[0].unit, equivalencies=u.spectral())])
-    arr, labels = band_list(band)
-    return arr, labels, single
+    One band (a :class:`~synthcorona.spectral.Band`, a text, a (2,) Quantity or a pair of scalar
+    Quantities; read by :meth:`Band.coerce <synthcorona.spectral.Band.coerce>`) gives ``single=True``;
+    an (n, 2) Quantity, a list of Bands or texts, or a dict label -> band gives several.
+    """
+    if isinstance(band, dict) or (isinstance(band, u.Quantity) and band.ndim == 2) or (
+            isinstance(band, list) and band and all(isinstance(b, (Band, str)) for b in band)):
+        arr, labels = band_list(band)
+        return arr, labels, False
+    b = Band.coerce(band, "band")
+    return np.array([b.energy_kev]), [b.label], True
 
 
 def absorbed_band_kernel(bands_kev: np.ndarray, prep, nh: float | None, ism_abundances="photospheric",
@@ -276,8 +289,10 @@ def observed_flux(dem, band, distance, nh=None, table=None, abundances="coronal"
     ----------
     dem : synthcorona.dem.DEM
         Volume DEM (cm^-3); a batch of DEMs is allowed.
-    band : Quantity
-        Two energies or wavelengths; an (n, 2) Quantity or a dict name -> pair for several.
+    band : Band, str or Quantity
+        One band (a :class:`~synthcorona.spectral.Band`, a text such as ``"0.2-2.4 keV"``, or two
+        energies or wavelengths, lower limit first in the unit given); an (n, 2) Quantity, a list
+        of Bands or texts, or a dict label -> band for several.
     distance : Quantity [length]
         Distance of the star (> 0); broadcast against the DEM batch shape.
     nh : Quantity [cm^-2], optional
@@ -299,7 +314,7 @@ def observed_flux(dem, band, distance, nh=None, table=None, abundances="coronal"
     w, em_unit = dem_weights(dem, prep)
     if not em_unit.is_equivalent(u.cm**-3):
         raise InputError(f"dem has units {em_unit}: observed_flux needs a volume DEM (cm^-3)")
-    d = _distance_cm(distance, w.shape[:-1])
+    d = distance_cm(distance, w.shape[:-1])
     bands, _, single = _energy_bands(band)
     k = absorbed_band_kernel(bands, prep, nhv, ism_abundances, photons=photons)   # (n_b, T)
     vals = (w @ k.T) / (4.0 * np.pi * d[..., None] ** 2)
@@ -319,8 +334,11 @@ def band_luminosity(dem, band, table=None, abundances="coronal", density=None, p
                       photons=photons)
 
 
-def _distance_cm(distance, batch_shape) -> np.ndarray:
-    """Validated distance in cm, broadcast to the DEM batch shape."""
+def distance_cm(distance, batch_shape) -> np.ndarray:
+    """Validated distance (a length Quantity > 0) in cm as floats, broadcast to the DEM batch shape.
+
+    Raises :class:`InputError` naming ``distance`` if it is missing, not > 0, or does not broadcast.
+    """
     if distance is None:
         raise InputError("distance is required for a volume DEM (cm^-3): give e.g. distance=10 * u.pc")
     d = as_quantity("distance", distance, u.cm)
@@ -400,8 +418,9 @@ def counts_to_flux(instrument, band=None, flux_band=None, nh=None, absorbed: boo
     band : str or Quantity pair, optional
         Instrument band (name or limits). Default: the instrument's only named band, or all
         channels ("total") if it has none.
-    flux_band : Quantity pair, optional
-        Energy band (photon energies or wavelengths) of the flux. Default: the limits of
+    flux_band : Band, str or Quantity pair, optional
+        Band (photon energies or wavelengths, read by :meth:`Band.coerce
+        <synthcorona.spectral.Band.coerce>`) of the flux. Default: the limits of
         ``band`` (for "total", the instrument's response range).
     nh : Quantity [cm^-2], optional
         Interstellar column; the count rate always includes it.
@@ -431,13 +450,10 @@ def counts_to_flux(instrument, band=None, flux_band=None, nh=None, absorbed: boo
     if flux_band is None:
         lo, hi = float(resp.band_lo.values[0]), float(resp.band_hi.values[0])
     else:
-        arr, _, single = _energy_bands(flux_band)
-        if not single:
-            raise InputError("flux_band must be one band: two energies or two wavelengths")
-        lo, hi = arr[0]
+        lo, hi = Band.coerce(flux_band, "flux_band").energy_kev
     prep = prepare(table, abundances, density, pressure)
     kf = absorbed_band_kernel(np.array([[lo, hi]]), prep, nhv if absorbed else None, ism_abundances)[0]  # (T,)
-    kr = resp.values[0] * _FOUR_PI_PC2                                  # counts cm3 s-1 (no 1/4πd²)
+    kr = resp.values[0] * FOUR_PI_PC2                                  # counts cm3 s-1 (no 1/4πd²)
     attrs = {k: v for k, v in resp.attrs.items() if k not in ("units", "quantity", "reference_distance")}
     attrs.update({
         "units": (u.erg / (u.cm**2 * u.ct)).to_string(),

@@ -1,4 +1,7 @@
-"""Physics-built bandpass components: filters, multilayer and grazing mirrors, silicon detectors.
+"""Physics-built bandpass components: optical constants, filters, silicon detectors, and their product.
+
+Mirrors (multilayer and grazing-incidence reflectivity) are in :mod:`synthcorona.instruments.multilayer`,
+built on :func:`refractive_index` from here.
 
 Every component is computed from tabulated atomic optical constants served by
 :mod:`xraydb`, which holds the Chantler tables:
@@ -26,14 +29,12 @@ edges (for example the Chantler Mo absorption index at 13.5 nm, beta = 0.016, is
 about 2.5 times the value beta ~ 0.0064 of Henke, Gullikson & Davis 1993, ADNDT 54,
 181 -- the Henke number quoted from memory), so EUV
 multilayer peak reflectivities come out lower than measured ones (see
-:func:`multilayer_reflectivity`).
+:func:`synthcorona.instruments.multilayer.multilayer_reflectivity`).
 
 Conventions
 -----------
 Refractive index ``n = 1 - delta + i beta`` with fields ``exp(i(k z - w t))``, so an
-absorbing medium has ``Im(n) > 0``. Angles of incidence for stacks are measured
-from the surface normal; :func:`mirror_reflectivity` takes the grazing angle
-(from the surface). Thicknesses and roughnesses are astropy length Quantities.
+absorbing medium has ``Im(n) > 0``. Thicknesses are astropy length Quantities.
 """
 from __future__ import annotations
 
@@ -44,7 +45,6 @@ import astropy.units as u
 import numpy as np
 import xraydb
 
-from ..constants import HC_KEV_ANGSTROM
 from ..errors import InputError
 from ..spectral import to_energy_kev
 from ..validation import as_quantity, check_range
@@ -55,10 +55,10 @@ __all__ = [
     "optics_energy_range",
     "linear_attenuation",
     "refractive_index",
+    "refractive_index_ev",
+    "checked_energy_ev",
+    "parse_layers",
     "filter_transmission",
-    "stack_reflectivity",
-    "multilayer_reflectivity",
-    "mirror_reflectivity",
     "silicon_qe",
     "design_throughput",
 ]
@@ -68,8 +68,6 @@ OPTICS_ENERGY_MIN = 10.0 * u.eV
 
 #: Densities above this (g/cm^3) are refused as typing errors (osmium, the densest element, is 22.6).
 _MAX_DENSITY = 30.0
-
-_POLARIZATIONS = ("unpolarized", "s", "p")
 
 
 # --------------------------------------------------------------------------- materials
@@ -164,8 +162,12 @@ def optics_energy_range(composition) -> tuple[float, float]:
     return lo / 1e3, hi / 1e3
 
 
-def _energy_ev(name: str, energy_or_wavelength, compositions) -> np.ndarray:
-    """Photon energies (eV) of the user's grid, checked against the optical-constant tables."""
+def checked_energy_ev(name: str, energy_or_wavelength, compositions) -> np.ndarray:
+    """Photon energies (eV) of a grid of energies or wavelengths (Quantity), checked against the tables.
+
+    Every value must lie inside :func:`optics_energy_range` of every composition in
+    ``compositions`` (dicts element -> atoms); :class:`InputError` names ``name`` otherwise.
+    """
     e_kev = to_energy_kev(name, energy_or_wavelength)
     lo, hi = 0.0, np.inf
     for comp in compositions:
@@ -227,7 +229,7 @@ def linear_attenuation(energy_or_wavelength, material: str, density=None, kind: 
     if kind not in ("total", "photo"):
         raise InputError(f"kind={kind!r} must be 'total' or 'photo'")
     _, rho, comp = material_info(material, density)
-    e_ev = _energy_ev("energy_or_wavelength", energy_or_wavelength, [comp])
+    e_ev = checked_energy_ev("energy_or_wavelength", energy_or_wavelength, [comp])
     return _mu_per_cm(e_ev, comp, rho, photo=(kind == "photo")) / u.cm
 
 
@@ -237,17 +239,19 @@ def refractive_index(energy_or_wavelength, material: str, density=None) -> np.nd
     ``delta`` and ``beta`` come from :func:`xraydb.xray_delta_beta`, i.e. from the
     atomic scattering factors f1, f2 of the Chantler tables combined by the
     standard dilute-atom relation ``n = 1 - (r_e lambda^2 / 2 pi) sum_j N_j (f1_j + i f2_j)``
-    (Henke, Gullikson & Davis 1993, ADNDT 54, 181, eq. 2; Attwood 1999, "Soft X-rays
+    (Henke, Gullikson & Davis 1993, At. Data Nucl. Data Tables 54, 181; Attwood 1999, "Soft X-rays
     and Extreme Ultraviolet Radiation", ch. 3). ``beta`` is the photoabsorption part.
 
     Returns a complex ndarray of the same shape as the grid.
     """
     formula, rho, comp = material_info(material, density)
-    e_ev = _energy_ev("energy_or_wavelength", energy_or_wavelength, [comp])
-    return _index_from_ev(e_ev, formula, rho)
+    e_ev = checked_energy_ev("energy_or_wavelength", energy_or_wavelength, [comp])
+    return refractive_index_ev(e_ev, formula, rho)
 
 
-def _index_from_ev(e_ev: np.ndarray, formula: str, rho: float) -> np.ndarray:
+def refractive_index_ev(e_ev: np.ndarray, formula: str, rho: float) -> np.ndarray:
+    """Complex refractive index ``1 - delta + i beta`` at photon energies ``e_ev`` (eV, already checked with
+    :func:`checked_energy_ev`) of a chemical formula of density ``rho`` (g/cm^3); see :func:`refractive_index`."""
     flat = np.atleast_1d(e_ev).astype(float).ravel()
     delta, beta, _ = xraydb.xray_delta_beta(formula, rho, flat.copy())
     delta = np.broadcast_to(np.asarray(delta, dtype=float), flat.shape)
@@ -256,8 +260,11 @@ def _index_from_ev(e_ev: np.ndarray, formula: str, rho: float) -> np.ndarray:
 
 
 # --------------------------------------------------------------------------- filters
-def _parse_layers(name: str, layers) -> list[tuple[str, float, dict]]:
-    """Validate [(material, thickness[, density]), ...] -> [(formula, rho, comp, t_cm), ...]."""
+def parse_layers(name: str, layers) -> list[tuple[str, float, dict]]:
+    """Validate ``[(material, thickness[, density]), ...]`` -> ``[(formula, rho, composition, thickness_cm), ...]``.
+
+    ``name`` is the argument named in errors; None gives an empty list.
+    """
     if layers is None:
         return []
     if isinstance(layers, (str, bytes)) or not isinstance(layers, Sequence):
@@ -318,259 +325,15 @@ def filter_transmission(energy_or_wavelength, material: str, thickness, density=
     """
     formula, rho, comp = material_info(material, density)
     t_cm = _thickness_cm("thickness", thickness)
-    extra = _parse_layers("oxide", oxide)
+    extra = parse_layers("oxide", oxide)
     check_range("mesh_fraction", float(mesh_fraction), lo=0.0, hi=1.0, inclusive=True)
     if float(mesh_fraction) >= 1.0:
         raise InputError(f"mesh_fraction={mesh_fraction} must be in [0, 1): a mesh blocking everything transmits nothing")
-    e_ev = _energy_ev("energy_or_wavelength", energy_or_wavelength, [comp] + [c for _, _, c, _ in extra])
+    e_ev = checked_energy_ev("energy_or_wavelength", energy_or_wavelength, [comp] + [c for _, _, c, _ in extra])
     optical_depth = _mu_per_cm(e_ev, comp, rho) * t_cm
     for _, r_k, c_k, t_k in extra:
         optical_depth = optical_depth + _mu_per_cm(e_ev, c_k, r_k) * t_k
     return ((1.0 - float(mesh_fraction)) * np.exp(-optical_depth)) * u.dimensionless_unscaled
-
-
-# --------------------------------------------------------------------------- reflectivity
-def _angle_cos2(name: str, angle, lo_deg: float, hi_deg: float, hi_inclusive: bool) -> np.ndarray:
-    a = as_quantity(name, angle, u.deg)
-    check_range(name, a.value, lo=lo_deg, hi=None, unit_label="deg")
-    if np.any(a.value > hi_deg) or (not hi_inclusive and np.any(a.value >= hi_deg)):
-        br = "]" if hi_inclusive else ")"
-        raise InputError(f"{name}={a} is outside the valid range [{lo_deg:g}, {hi_deg:g}{br} deg")
-    return a.to_value(u.rad)
-
-
-def _parratt(n_layers: list, d_cm: list, n_sub, k0, cos2_inc, sigma_cm: np.ndarray, polarization: str):
-    """Parratt recursion for one polarisation; returns the complex amplitude reflectance.
-
-    n_layers : complex arrays (top first), d_cm : thicknesses (cm), n_sub : substrate index,
-    k0 : vacuum wavenumber 2 pi / lambda (1/cm), cos2_inc : cos^2 of the incidence angle from
-    the normal in vacuum, sigma_cm : rms roughness of each interface (top first, len = layers + 1).
-    """
-    indices = [np.ones_like(n_sub)] + list(n_layers) + [n_sub]
-    # kz_j = k0 sqrt(n_j^2 - sin^2 theta) = k0 sqrt((n_j - 1)(n_j + 1) + cos^2 theta), written so that
-    # grazing incidence keeps its precision; principal sqrt has Im >= 0 for Im(n^2) >= 0 (decaying wave).
-    kz = [k0 * np.sqrt((n - 1.0) * (n + 1.0) + cos2_inc) for n in indices]
-
-    def interface(j):
-        if polarization == "s":
-            r = (kz[j] - kz[j + 1]) / (kz[j] + kz[j + 1])
-        else:
-            a, b = indices[j + 1] ** 2 * kz[j], indices[j] ** 2 * kz[j + 1]
-            r = (a - b) / (a + b)
-        if sigma_cm[j] > 0:
-            # Nevot & Croce (1980), Rev. Phys. Appl. 15, 761: r -> r exp(-2 kz_j kz_j+1 sigma^2)
-            r = r * np.exp(-2.0 * kz[j] * kz[j + 1] * sigma_cm[j] ** 2)
-        return r
-
-    n_int = len(indices) - 1
-    ramp = interface(n_int - 1)  # deepest interface: last layer (or vacuum) / substrate
-    for j in range(n_int - 2, -1, -1):  # loop over layers (not over wavelengths)
-        phase = np.exp(2j * kz[j + 1] * d_cm[j])
-        r = interface(j)
-        ramp = (r + ramp * phase) / (1.0 + r * ramp * phase)
-    return ramp
-
-
-def _stack(e_ev, layers, sub, theta_rad_from_normal, sigma, polarization):
-    """Reflectivity of a parsed stack on the broadcast of energy and angle."""
-    if polarization not in _POLARIZATIONS:
-        raise InputError(f"polarization={polarization!r} must be one of {_POLARIZATIONS}")
-    e_b, th_b = np.broadcast_arrays(np.asarray(e_ev, float), np.asarray(theta_rad_from_normal, float))
-    shape = e_b.shape
-    e_flat, th_flat = e_b.ravel(), th_b.ravel()
-    uniq_e, inv = np.unique(e_flat, return_inverse=True)
-    cache = {}
-
-    def index(formula, rho):  # one optical-constant look-up per distinct material
-        if (formula, rho) not in cache:
-            cache[(formula, rho)] = _index_from_ev(uniq_e, formula, rho)[inv]
-        return cache[(formula, rho)]
-
-    n_layers = [index(f, r) for f, r, _, _ in layers]
-    n_sub = index(sub[0], sub[1])
-    d_cm = [t for _, _, _, t in layers]
-    k0 = 2.0 * np.pi * e_flat / (HC_KEV_ANGSTROM * 1e3 * 1e-8)  # 1/cm
-    cos2 = np.cos(th_flat) ** 2
-    pols = ("s", "p") if polarization == "unpolarized" else (polarization,)
-    refl = np.zeros(e_flat.shape)
-    for pol in pols:
-        refl += np.abs(_parratt(n_layers, d_cm, n_sub, k0, cos2, sigma, pol)) ** 2
-    refl /= len(pols)
-    return refl.reshape(shape)
-
-
-def _roughness_cm(roughness, n_interfaces: int) -> np.ndarray:
-    r = as_quantity("roughness", roughness, u.cm)
-    check_range("roughness", r.to_value(u.nm), lo=0.0, hi=None, unit_label="nm")
-    vals = np.atleast_1d(r.value).astype(float)
-    if vals.size == 1:
-        return np.full(n_interfaces, vals[0])
-    if vals.size != n_interfaces or np.ndim(r) != 1:
-        raise InputError(f"roughness must be one length or one per interface ({n_interfaces}); got shape {np.shape(r)}")
-    return vals
-
-
-def stack_reflectivity(energy_or_wavelength, layers, substrate: str, angle=0 * u.deg, roughness=0 * u.nm,
-                       polarization: str = "unpolarized", substrate_density=None) -> u.Quantity:
-    """Specular reflectivity of an arbitrary stack of thin films on a thick substrate.
-
-    Computed with the recursive method of Parratt (1954, Phys. Rev. 95, 359): starting
-    from the Fresnel amplitude of the deepest interface, each layer ``j`` above it
-    updates the amplitude as ``R_j = (r_j + R_{j+1} e^{2 i k_z d}) / (1 + r_j R_{j+1} e^{2 i k_z d})``
-    with ``k_z = (2 pi / lambda) sqrt(n^2 - sin^2 theta)``. Interface roughness (rms
-    ``sigma``) multiplies each Fresnel amplitude by the Névot-Croce factor
-    ``exp(-2 k_z,j k_z,j+1 sigma^2)`` (Névot & Croce 1980, Rev. Phys. Appl. 15, 761).
-    Fresnel amplitudes for s and p polarisation follow Born & Wolf, "Principles of
-    Optics", sect. 1.5; optical constants from :func:`refractive_index`.
-
-    Parameters
-    ----------
-    energy_or_wavelength : `~astropy.units.Quantity`
-        Photon energies or wavelengths; broadcast against ``angle``.
-    layers : list of tuple
-        ``[(material, thickness), ...]`` or ``(material, thickness, density)``, listed from
-        the vacuum side downwards. May be empty (bare substrate: a single interface).
-    substrate : str
-        Substrate material (semi-infinite).
-    angle : `~astropy.units.Quantity`
-        Angle of incidence measured from the surface normal, in [0, 90) deg; broadcast
-        against the grid.
-    roughness : `~astropy.units.Quantity`
-        rms interface roughness: one length for every interface, or one per interface
-        (len(layers) + 1 values, top first). >= 0.
-    polarization : {"unpolarized", "s", "p"}
-        "unpolarized" averages the s and p reflectivities.
-    substrate_density : `~astropy.units.Quantity`, optional
-        Substrate density; default xraydb's bulk density.
-
-    Returns
-    -------
-    `~astropy.units.Quantity`
-        Dimensionless reflectivity (broadcast shape of grid and angle).
-    """
-    parsed = _parse_layers("layers", list(layers) if layers is not None else [])
-    sub_formula, sub_rho, sub_comp = material_info(substrate, substrate_density, name="substrate")
-    comps = [c for _, _, c, _ in parsed] + [sub_comp]
-    e_ev = _energy_ev("energy_or_wavelength", energy_or_wavelength, comps)
-    theta = _angle_cos2("angle", angle, 0.0, 90.0, hi_inclusive=False)
-    sigma = _roughness_cm(roughness, len(parsed) + 1)
-    refl = _stack(e_ev, parsed, (sub_formula, sub_rho), theta, sigma, polarization)
-    return refl * u.dimensionless_unscaled
-
-
-def multilayer_reflectivity(energy_or_wavelength, period, gamma: float, n_bilayers: int,
-                            materials=("Mo", "Si"), substrate: str = "Si", roughness=0 * u.nm,
-                            angle=0 * u.deg, polarization: str = "unpolarized",
-                            densities=None) -> u.Quantity:
-    """Reflectivity of a periodic two-material multilayer mirror (dimensionless Quantity).
-
-    The stack, from the substrate upwards, is ``[absorber, spacer] x n_bilayers`` with
-    absorber = ``materials[0]`` of thickness ``gamma * period`` and spacer =
-    ``materials[1]`` of thickness ``(1 - gamma) * period``; the top layer (facing
-    vacuum) is therefore the spacer, as in Si-terminated Mo/Si EUV mirrors. The
-    reflectivity is computed with the recursion of Parratt (1954, Phys. Rev. 95, 359)
-    and Névot-Croce roughness factors (Névot & Croce 1980, Rev. Phys. Appl. 15, 761),
-    see :func:`stack_reflectivity`. The first-order peak lies near the refraction-corrected
-    Bragg wavelength ``lambda = 2 d cos(theta) sqrt(1 - 2 delta_mean / cos^2 theta)``
-    (e.g. Spiller 1994, "Soft X-ray Optics", SPIE Press).
-
-    Limitation: with the Chantler optical constants held by xraydb, an ideal Mo/Si
-    mirror for 13.5 nm peaks at about 0.60-0.62, below the ~0.70 measured for real
-    mirrors (Bajt et al. 2002, Opt. Eng. 41, 1797) and the ~0.74 predicted with
-    Henke constants (both figures from memory), because Chantler's isolated-atom Mo
-    absorption index near 13.5 nm is about 2.5 times larger than Henke's.
-
-    Parameters
-    ----------
-    energy_or_wavelength : `~astropy.units.Quantity`
-        Photon energies or wavelengths; broadcast against ``angle``.
-    period : `~astropy.units.Quantity`
-        Bilayer period d (length, > 0).
-    gamma : float
-        Absorber thickness fraction of a period, in (0, 1).
-    n_bilayers : int
-        Number of periods, >= 1.
-    materials : tuple of str
-        (absorber, spacer), e.g. ("Mo", "Si").
-    substrate : str
-        Substrate material.
-    roughness : `~astropy.units.Quantity`
-        rms roughness applied to every interface (>= 0).
-    angle : `~astropy.units.Quantity`
-        Angle of incidence from the surface normal, [0, 90) deg.
-    polarization : {"unpolarized", "s", "p"}
-    densities : tuple of Quantity, optional
-        (absorber density, spacer density); default bulk densities.
-
-    Returns
-    -------
-    `~astropy.units.Quantity`
-        Dimensionless reflectivity.
-    """
-    d = as_quantity("period", period, u.cm)
-    if np.ndim(d) != 0:
-        raise InputError(f"period must be a single length, got shape {np.shape(d)}")
-    check_range("period", d.to_value(u.nm), lo=0.0, hi=None, unit_label="nm", inclusive=False)
-    try:
-        g = float(gamma)
-    except (TypeError, ValueError):
-        raise InputError(f"gamma={gamma!r} must be a number in (0, 1)") from None
-    check_range("gamma", g, lo=0.0, hi=1.0, inclusive=False)
-    try:
-        is_int = not isinstance(n_bilayers, bool) and int(n_bilayers) == n_bilayers
-    except (TypeError, ValueError, OverflowError):
-        is_int = False
-    if not is_int:
-        raise InputError(f"n_bilayers={n_bilayers!r} must be an integer in [1, 10000]")
-    nb = int(n_bilayers)
-    check_range("n_bilayers", nb, lo=1, hi=10000)
-    if isinstance(materials, str) or len(materials) != 2:
-        raise InputError(f"materials={materials!r} must be a pair (absorber, spacer)")
-    dens = (None, None) if densities is None else tuple(densities)
-    if len(dens) != 2:
-        raise InputError(f"densities={densities!r} must be a pair (absorber density, spacer density) or None")
-    absorber = (materials[0], g * d, dens[0]) if dens[0] is not None else (materials[0], g * d)
-    spacer = (materials[1], (1.0 - g) * d, dens[1]) if dens[1] is not None else (materials[1], (1.0 - g) * d)
-    layers = [spacer, absorber] * nb
-    return stack_reflectivity(energy_or_wavelength, layers, substrate, angle=angle, roughness=roughness,
-                              polarization=polarization)
-
-
-def mirror_reflectivity(energy_or_wavelength, material: str, grazing_angle, roughness=0 * u.nm,
-                        density=None, polarization: str = "unpolarized") -> u.Quantity:
-    """Grazing-incidence reflectivity of a thick single-material mirror coating.
-
-    Fresnel reflectivity of one interface vacuum/coating (Born & Wolf, "Principles of
-    Optics", sect. 1.5) with the Névot-Croce roughness factor
-    ``exp(-2 k_z0 k_z1 sigma^2)`` (Névot & Croce 1980, Rev. Phys. Appl. 15, 761),
-    computed by :func:`stack_reflectivity` with no layers. Below the critical angle
-    ``theta_c ~ sqrt(2 delta)`` the reflectivity is high (total external reflection).
-
-    Parameters
-    ----------
-    energy_or_wavelength : `~astropy.units.Quantity`
-        Photon energies or wavelengths; broadcast against ``grazing_angle``.
-    material : str
-        Coating (e.g. "Au", "Ir", "Pt", "Ni").
-    grazing_angle : `~astropy.units.Quantity`
-        Angle between ray and surface, in (0, 90] deg.
-    roughness : `~astropy.units.Quantity`
-        rms surface roughness (>= 0).
-    density : `~astropy.units.Quantity`, optional
-        Coating density; default bulk density.
-    polarization : {"unpolarized", "s", "p"}
-
-    Returns
-    -------
-    `~astropy.units.Quantity`
-        Dimensionless reflectivity.
-    """
-    g = as_quantity("grazing_angle", grazing_angle, u.deg)
-    check_range("grazing_angle", g.value, lo=0.0, hi=90.0, unit_label="deg")
-    if np.any(g.value <= 0):
-        raise InputError(f"grazing_angle={g} must be in (0, 90] deg")
-    return stack_reflectivity(energy_or_wavelength, [], material, angle=90 * u.deg - g, roughness=roughness,
-                              polarization=polarization, substrate_density=density)
 
 
 # --------------------------------------------------------------------------- detector
@@ -616,7 +379,7 @@ def silicon_qe(energy_or_wavelength, dead_layer, depletion_depth, oxide=0 * u.nm
     dep_cm = float(dep.value)
     if np.isnan(dep_cm) or dep_cm <= 0:
         raise InputError(f"depletion_depth={depletion_depth} must be > 0 (valid range (0, inf] um)")
-    e_ev = _energy_ev("energy_or_wavelength", energy_or_wavelength, [si, ox])
+    e_ev = checked_energy_ev("energy_or_wavelength", energy_or_wavelength, [si, ox])
     window = np.exp(-_mu_per_cm(e_ev, ox, rho_ox) * t_ox - _mu_per_cm(e_ev, si, rho_si) * t_dead)
     if np.isinf(dep_cm):
         collected = np.ones_like(window)
@@ -641,9 +404,9 @@ def _as_factor(name: str, value, shape) -> np.ndarray:
 def design_throughput(energy_or_wavelength, geometric_area, mirror=None, filters=(), detector=None) -> u.Quantity:
     """Effective area of a simple telescope design: ``A_geom * mirror * prod(filters) * QE``.
 
-    A product of independent transmission/reflection factors on one spectral grid
-    (the usual first-order instrument model; e.g. Boerner et al. 2012, Sol. Phys. 275, 41,
-    eq. 1, for the EUV imagers of the Solar Dynamics Observatory).
+    A product of independent transmission/reflection factors on one spectral grid: the
+    generic first-order model of an instrument's throughput (common practice, no single
+    source), neglecting scattering out of the beam, vignetting and contamination.
 
     Parameters
     ----------
@@ -653,7 +416,7 @@ def design_throughput(energy_or_wavelength, geometric_area, mirror=None, filters
         Unobstructed collecting area (area units, > 0).
     mirror : array-like or Quantity, optional
         Dimensionless mirror factor on the grid, e.g. the square of
-        :func:`multilayer_reflectivity` for two reflections. Default 1.
+        :func:`~synthcorona.instruments.multilayer.multilayer_reflectivity` for two reflections. Default 1.
     filters : list of tuple
         ``[(material, thickness), ...]`` or ``(material, thickness, kwargs_dict)`` with
         keyword arguments for :func:`filter_transmission` (``density``, ``oxide``,

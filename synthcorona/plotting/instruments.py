@@ -13,7 +13,7 @@ import xarray as xr
 
 from ..constants import HC_KEV_ANGSTROM
 from ..errors import InputError
-from ..instruments.response import Instrument
+from ..instruments.instrument import Instrument
 from ..spectral import grid_edges
 
 __all__ = ["plot_effective_area", "plot_temperature_responses", "plot_folded_spectrum"]

@@ -1,4 +1,4 @@
-"""Temperature responses, count rates of DEMs and observables (synthcorona.instruments).
+"""Temperature responses and count rates of DEMs (synthcorona.instruments.dem_response).
 
 These tests use only what every emissivity table has: Fe IX, Fe XII, Fe XVIII, O VII/VIII
 lines and the H/He continuum. Reference values are named beside each assertion: a
@@ -12,15 +12,7 @@ import pytest
 import synthcorona as sc
 from synthcorona.absorption import ism_cross_section
 from synthcorona.errors import InputError
-from synthcorona.instruments import (
-    Instrument,
-    band_luminosity,
-    counts_to_flux,
-    hardness_ratio,
-    hardness_ratio_curve,
-    load_generic,
-    observed_flux,
-)
+from synthcorona.instruments import Instrument, load_generic
 from synthcorona.synthesis import band_kernel, prepare
 
 PC_CM = (1 * u.pc).to_value(u.cm)
@@ -232,62 +224,7 @@ def test_column_dem_needs_a_solid_angle(table):
     np.testing.assert_allclose(r.value, folded.value, rtol=1e-3)
 
 
-# ----------------------------------------------------------------------------- observables
-def test_observed_flux_without_absorption_equals_band_flux(table):
-    dem = sc.GaussianDEM(np.array([6.2, 6.8]), 0.2, 1e51 * u.cm**-3)
-    band = (0.2, 2.4) * u.keV
-    f = observed_flux(dem, band, 10 * u.pc, table=table)
-    ref = sc.band_flux(dem, band, 10 * u.pc, table=table)    # synthesis path (exact kernel)
-    np.testing.assert_allclose(f.value, ref.value, rtol=1e-9)
-    fa = observed_flux(dem, band, 10 * u.pc, nh=1e20 * u.cm**-2, table=table)
-    assert np.all(fa < f) and np.all(fa > 0.5 * f)
-    # several bands; luminosity = 4 pi d^2 F (unabsorbed)
-    fb = observed_flux(dem, {"s": (0.2, 1.0) * u.keV, "h": (1.0, 2.4) * u.keV}, 10 * u.pc, table=table)
-    np.testing.assert_allclose(fb.sum(axis=-1).value, f.value, rtol=1e-9)
-    lum = band_luminosity(dem, band, table=table)
-    np.testing.assert_allclose(lum.to_value(u.erg / u.s), 4 * np.pi * (10 * PC_CM) ** 2 * f.value, rtol=1e-9)
-
-
-def test_hardness_ratio_grows_with_temperature(table, sxt):
-    dem = sc.GaussianDEM(np.array([6.2, 6.6, 7.0]), 0.1, 1e51 * u.cm**-3)
-    hr = hardness_ratio(sxt, dem, hard="hard", soft="soft", table=table)
-    assert hr.shape == (3,) and np.all(np.abs(hr.value) <= 1)
-    # common practice, no source: hotter coronae are harder
-    assert hr[0] < hr[1] < hr[2]
-    curve = hardness_ratio_curve(sxt, "hard", "soft", table=table)
-    t = curve.logT.values
-    sel = (t >= 6.0) & (t <= 7.2)
-    assert np.all(np.diff(curve.values[sel]) > 0)
-    # absorption hardens the spectrum (soft band absorbed more)
-    hr_abs = hardness_ratio(sxt, dem, "hard", "soft", nh=1e21 * u.cm**-2, table=table)
-    assert np.all(hr_abs > hr)
-
-
-def test_counts_to_flux_factor(table, sxt):
-    c = counts_to_flux(sxt, "broad", nh=1e19 * u.cm**-2, table=table)
-    assert u.Unit(c.attrs["units"]) == u.erg / (u.cm**2 * u.ct)
-    sel = (c.logT.values >= 6.0) & (c.logT.values <= 7.5)
-    assert np.all(np.isfinite(c.values[sel])) and np.all(c.values[sel] > 0)
-    # hand bound for a flat 100 cm2 instrument without absorption: F / R = <E> / A with the
-    # mean photon energy inside the band, 0.2 keV <= <E> <= 2.4 keV
-    flat = _flat(area=100.0, broad=[0.2, 2.4] * u.keV)
-    cf = counts_to_flux(flat, "broad", table=table).values[sel]
-    kev = (1 * u.keV).to_value(u.erg)
-    assert np.all(cf >= 0.2 * kev / 100.0) and np.all(cf <= 2.4 * kev / 100.0)
-    # exact for the flat instrument: energy / photon band kernels of synthcorona.synthesis
-    prep = prepare(table, "coronal", None, None)
-    b = np.array([[0.2, 2.4]])
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ref = band_kernel(b, prep)[0] / (100.0 * band_kernel(b, prep, photons=True)[0])
-    np.testing.assert_allclose(cf, ref[sel], rtol=1e-9)
-    # for DEMs: factor x count rate = unabsorbed flux
-    dem = sc.GaussianDEM(np.array([6.3, 6.9]), 0.2, 1e51 * u.cm**-3)
-    cd = counts_to_flux(sxt, "broad", nh=1e19 * u.cm**-2, dem=dem, table=table)
-    rate = sxt.count_rate(dem, distance=10 * u.pc, band="broad", nh=1e19 * u.cm**-2, table=table)
-    flux = sc.band_flux(dem, (0.2, 2.4) * u.keV, 10 * u.pc, table=table)
-    np.testing.assert_allclose(cd.values * rate.value, flux.value, rtol=1e-9)
-
-
+# ----------------------------------------------------------------------------- attrs
 def test_dict_abundances_missing_elements_are_stated(table, sxt):
     ab = {"H": 1.0, "He": 0.085, "Fe": 3.2e-5}            # no O
     resp = sxt.temperature_response(table=table, abundances=ab)
@@ -302,26 +239,29 @@ def test_dict_abundances_missing_elements_are_stated(table, sxt):
 
 
 # ----------------------------------------------------------------------------- bad input
-def test_bad_inputs_name_the_argument(table, sxt):
-    dem = sc.GaussianDEM(6.5, 0.2, 1e51 * u.cm**-3)
-    with pytest.raises(InputError, match=r"distance=.*valid range \(0, inf\) pc"):
-        sxt.count_rate(dem, distance=0 * u.pc, table=table)
-    with pytest.raises(InputError, match="distance is required"):
-        sxt.count_rate(dem, table=table)
-    with pytest.raises(u.UnitsError, match="distance"):
-        sxt.count_rate(dem, distance=10, table=table)
-    with pytest.raises(InputError, match=r"nh=\[-1\.e\+20\] cm\^-2 is outside the valid range \[0, 1e\+24\]"):
-        sxt.count_rate(dem, distance=10 * u.pc, nh=-1e20 * u.cm**-2, table=table)
-    with pytest.raises(InputError, match=r"band 'ultra' is not defined .*defined bands: \['broad', 'full', 'hard', 'soft'\]"):
-        sxt.count_rate(dem, distance=10 * u.pc, band="ultra", table=table)
+DEM = sc.GaussianDEM(6.5, 0.2, 1e51 * u.cm**-3)
+
+
+@pytest.mark.parametrize("exc, match, dem, kwargs", [
+    (InputError, r"distance=.*valid range \(0, inf\) pc", DEM, {"distance": 0 * u.pc}),
+    (InputError, "distance is required", DEM, {}),
+    (u.UnitsError, "distance", DEM, {"distance": 10}),
+    (InputError, r"nh=\[-1\.e\+20\] cm\^-2 is outside the valid range \[0, 1e\+24\]", DEM,
+     {"distance": 10 * u.pc, "nh": -1e20 * u.cm**-2}),
+    (InputError, r"band 'ultra' is not defined .*defined bands: \['broad', 'full', 'hard', 'soft'\]", DEM,
+     {"distance": 10 * u.pc, "band": "ultra"}),
+    (InputError, "solid_angle", sc.GaussianDEM(6.5, 0.2, 1e27 * u.cm**-5), {}),
+    (InputError, "solid_angle applies to a column DEM", DEM, {"distance": 10 * u.pc, "solid_angle": 1 * u.sr}),
+    (InputError, "not a DEM", "hot", {"distance": 10 * u.pc}),
+])
+def test_bad_count_rate_inputs_name_the_argument(table, sxt, exc, match, dem, kwargs):
+    with pytest.raises(exc, match=match):
+        sxt.count_rate(dem, table=table, **kwargs)
+
+
+def test_bad_band_and_instrument_names(table, sxt):
     with pytest.raises(InputError, match="band 'ultra'"):
         sxt.temperature_response(table=table, bands=["soft", "ultra"])
-    with pytest.raises(InputError, match="solid_angle"):
-        sxt.count_rate(sc.GaussianDEM(6.5, 0.2, 1e27 * u.cm**-5), table=table)
-    with pytest.raises(InputError, match="solid_angle applies to a column DEM"):
-        sxt.count_rate(dem, distance=10 * u.pc, solid_angle=1 * u.sr, table=table)
-    with pytest.raises(InputError, match="not a DEM"):
-        sxt.count_rate("hot", distance=10 * u.pc, table=table)
     with pytest.raises(InputError, match="name='sc-nothing' is not a generic instrument; available: sc-softx"):
         load_generic("sc-nothing")
 

@@ -6,7 +6,6 @@ that are choices of our own generic designs, checked for consistency, not physic
 import astropy.units as u
 import numpy as np
 import pytest
-from astropy.table import QTable
 
 import synthcorona as sc
 from synthcorona.errors import InputError
@@ -19,7 +18,7 @@ from synthcorona.instruments import (
     build_instrument,
     list_generic,
     load_generic,
-    load_instrument,
+    multilayer,
     optics,
 )
 from synthcorona.plotting.instruments import plot_effective_area, plot_folded_spectrum, plot_temperature_responses
@@ -49,11 +48,11 @@ def test_euv_channels_peak_at_their_wavelength_and_obey_the_product_rule(name, c
     assert abs(lam[i].value - centre) < 1.5                 # design target (periods tuned for these peaks)
     half = lam.value[a > 0.5 * a[i]]
     assert half.max() - half.min() < 10.0                   # a narrow-band channel (design target)
-    # Product rule A = A_geom R^2 T_Al^2 QE (Boerner et al. 2012, Sol. Phys. 275, 41, eq. 1),
-    # recomputed from the optics functions at the peak
+    # Product rule A = A_geom R^2 T_Al^2 QE (the generic first-order throughput model, common
+    # practice, no single source), recomputed from the optics functions at the peak
     x = lam[i]
     period = {171.0: 8.775, 193.0: 9.998, 211.0: 11.020}[centre] * u.nm
-    r = optics.multilayer_reflectivity(x, period, 0.25, 40, roughness=0.5 * u.nm).value
+    r = multilayer.multilayer_reflectivity(x, period, 0.25, 40, roughness=0.5 * u.nm).value
     t = optics.filter_transmission(x, "Al", 150 * u.nm, oxide=[("Al2O3", 6 * u.nm)], mesh_fraction=0.15).value
     qe = optics.silicon_qe(x, 0 * u.nm, 15 * u.um, oxide=5 * u.nm).value
     np.testing.assert_allclose(a[i], 80.0 * r**2 * t**2 * qe, rtol=2e-3)   # 2e-3: linear interpolation of samples
@@ -114,7 +113,7 @@ def test_build_instrument_is_the_product_of_its_components():
                             detector={"dead_layer": 50 * u.nm, "depletion_depth": 30 * u.um},
                             geometric_area=50 * u.cm**2, energy_grid=grid, name="test",
                             bands={"soft": [0.3, 1.0] * u.keV})
-    expected = (50.0 * optics.mirror_reflectivity(grid, "Ir", 0.5 * u.deg, roughness=0.5 * u.nm).value ** 2
+    expected = (50.0 * multilayer.mirror_reflectivity(grid, "Ir", 0.5 * u.deg, roughness=0.5 * u.nm).value ** 2
                 * optics.filter_transmission(grid, "Al", 100 * u.nm).value
                 * optics.filter_transmission(grid, "C8H8", 150 * u.nm, density=1.05 * u.g / u.cm**3).value
                 * optics.silicon_qe(grid, 50 * u.nm, 30 * u.um, oxide=10 * u.nm).value)
@@ -132,10 +131,10 @@ def test_build_instrument_multilayer_from_dict():
     lam = np.linspace(120.0, 150.0, 301) * u.AA
     inst = build_instrument(mirror={"period": 6.9 * u.nm, "gamma": 0.4, "n_bilayers": 50, "n_reflections": 1},
                             energy_grid=lam, geometric_area=1 * u.cm**2)
-    r = optics.multilayer_reflectivity(lam, 6.9 * u.nm, 0.4, 50, roughness=0.5 * u.nm).value
+    r = multilayer.multilayer_reflectivity(lam, 6.9 * u.nm, 0.4, 50, roughness=0.5 * u.nm).value
     np.testing.assert_allclose(inst.effective_area(lam).value, r, rtol=1e-10)
     # Mo/Si near 13.5 nm: peak reflectivity 0.55-0.7 (Bajt et al. 2002, Opt. Eng. 41, 1797:
-    # ~0.70 measured; lower with the Chantler constants, see optics.multilayer_reflectivity)
+    # ~0.70 measured; lower with the Chantler constants, see multilayer.multilayer_reflectivity)
     assert 0.5 < r.max() < 0.75
 
 
@@ -160,26 +159,6 @@ def test_build_instrument_bad_inputs():
     # below ~17 eV the isolated-atom constants give Mo/Si reflectivities above 1: refused
     with pytest.raises(InputError, match="exceeds 1"):
         build_instrument(mirror=MultilayerMirror(period=8.8 * u.nm), energy_grid=np.geomspace(10, 100, 50) * u.eV)
-
-
-# ----------------------------------------------------------------------------- load_instrument
-def test_load_instrument_accepts_generic_names_and_files(tmp_path):
-    assert load_instrument("sc-fe12") is load_generic("sc-fe12")
-    with_band = load_instrument("sc-softx", bands={"oxygen": [0.5, 0.7] * u.keV})
-    assert "oxygen" in with_band.bands and "oxygen" not in load_generic("sc-softx").bands
-    t = QTable()
-    t["E"] = [1.0, 2.0, 3.0] * u.keV
-    t["A"] = [0.0, 10.0, 10.0] * u.cm**2
-    t.write(tmp_path / "e.ecsv")
-    inst = load_instrument(tmp_path / "e.ecsv")
-    e = np.linspace(1.0, 3.0, 11)
-    # analytic integral of the piecewise-linear curve: 5 + 10 = 15 counts/s for 1 ph/s/cm2/keV
-    np.testing.assert_allclose(inst.count_rate_from_spectrum(np.diff(e) * PH, e * u.keV).value, 15.0, rtol=1e-12)
-    with pytest.raises(InputError, match="'nowhere.arf' is neither an existing response file nor a generic "
-                                         "instrument name; generic instruments: sc-softx, sc-fe9"):
-        load_instrument("nowhere.arf")
-    with pytest.raises(InputError, match="rmf= cannot be combined"):
-        load_instrument("sc-softx", rmf="x.rmf")
 
 
 # ----------------------------------------------------------------------------- plots

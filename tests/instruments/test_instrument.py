@@ -1,4 +1,4 @@
-"""Tests of synthcorona.instruments.response (Instrument: folding, rebinning, bands).
+"""Tests of synthcorona.instruments.instrument (Instrument: folding, rebinning, bands).
 
 Reference values are analytic integrals computed in the test (named beside each
 assertion) or hand calculations written out in comments.
@@ -13,7 +13,8 @@ import scipy.sparse as sp
 
 from synthcorona.constants import HC_KEV_ANGSTROM
 from synthcorona.errors import InputError
-from synthcorona.instruments.response import Instrument
+from synthcorona.instruments.instrument import Instrument
+from synthcorona.spectral import Band
 
 PH = u.ph / (u.s * u.cm**2)
 
@@ -175,10 +176,14 @@ def test_photon_band_cuts_bins_exactly():
     inst = Instrument("one", [1.0] * u.keV, [3.0] * u.keV, [10.0] * u.cm**2)
     rate = inst.count_rate_from_spectrum([3.5] * PH, [0.5, 4.0] * u.keV, band=[2.0, 2.5] * u.keV)
     np.testing.assert_allclose(rate.value, 5.0, rtol=1e-14)
-    # same band in wavelength (Angstrom, any order)
-    rate_l = inst.count_rate_from_spectrum([3.5] * PH, [0.5, 4.0] * u.keV,
-                                           band=[HC_KEV_ANGSTROM / 2.0, HC_KEV_ANGSTROM / 2.5] * u.AA)
-    np.testing.assert_allclose(rate_l.value, 5.0, rtol=1e-12)
+    # same band in wavelength (Angstrom, short to long wavelength), as a Quantity and as a Band
+    lam = [HC_KEV_ANGSTROM / 2.5, HC_KEV_ANGSTROM / 2.0] * u.AA
+    for band in (lam, Band(lam[0], lam[1])):
+        rate_l = inst.count_rate_from_spectrum([3.5] * PH, [0.5, 4.0] * u.keV, band=band)
+        np.testing.assert_allclose(rate_l.value, 5.0, rtol=1e-12)
+    # reversed limits (in the unit given) are an error, not swapped (synthcorona.spectral.Band)
+    with pytest.raises(InputError, match="not below the upper limit"):
+        inst.count_rate_from_spectrum([3.5] * PH, [0.5, 4.0] * u.keV, band=lam[::-1])
 
 
 def test_channel_band_takes_overlap_fraction():
@@ -228,11 +233,15 @@ def test_band_matrix_with_rmf_equals_channel_selection_of_fold():
 
 def test_with_bands_returns_copy():
     inst, *_ = _stepped_instrument()
-    new = inst.with_bands(soft=(0.3 * u.keV, 1 * u.keV), euv=[100, 50] * u.AA)
+    new = inst.with_bands(soft=(0.3 * u.keV, 1 * u.keV), euv=[50, 100] * u.AA, text="2-4 keV")
     assert inst.bands == {}
-    assert set(new.bands) == {"soft", "euv"}
+    assert set(new.bands) == {"soft", "euv", "text"}
     np.testing.assert_allclose(new.bands["euv"].to_value(u.keV), [HC_KEV_ANGSTROM / 100, HC_KEV_ANGSTROM / 50])
+    np.testing.assert_allclose(new.bands["text"].to_value(u.keV), [2.0, 4.0])
     assert new.bands["soft"].unit == u.keV
+    # reversed limits are refused, naming the band
+    with pytest.raises(InputError, match="band 'euv'.*not below the upper limit"):
+        inst.with_bands(euv=[100, 50] * u.AA)
 
 
 # ---------------------------------------------------------------- effective area
@@ -291,26 +300,24 @@ def test_bad_instrument_definitions(lo, hi, area, match):
         Instrument("bad", lo * u.keV, hi * u.keV, area * u.cm**2)
 
 
-def test_bad_units_and_shapes():
-    inst, *_ = _stepped_instrument()
-    with pytest.raises(u.UnitsError, match="area"):
-        Instrument("x", [1.0] * u.keV, [2.0] * u.keV, [1.0])
-    with pytest.raises(u.UnitsError, match="photon_flux has no units"):
-        inst.fold(np.ones(FINE.size - 1), FINE * u.keV)
-    with pytest.raises(u.UnitsError, match="multiplied by the bin widths"):
-        inst.fold(np.ones(FINE.size - 1) * PH / u.keV, FINE * u.keV)
-    with pytest.raises(InputError, match="last axis must have 20000"):
-        inst.fold(np.ones(10) * PH, FINE * u.keV)
-    with pytest.raises(InputError, match=">= 0"):
-        inst.fold(-np.ones(FINE.size - 1) * PH, FINE * u.keV)
-    with pytest.raises(u.UnitsError, match="energy_edges"):
-        inst.fold(np.ones(FINE.size - 1) * PH, FINE * u.s)
-    with pytest.raises(InputError, match="not defined"):
-        inst.count_rate_from_spectrum(_flat(FINE), FINE * u.keV, band="nope")
-    with pytest.raises(InputError, match="does not overlap"):
-        inst.with_bands(far=[50, 60] * u.keV)
-    with pytest.raises(InputError, match="no named bands"):
-        inst.band_matrix(FINE * u.keV)
+_STEPPED = _stepped_instrument()[0]
+
+
+@pytest.mark.parametrize("exc, match, call", [
+    (u.UnitsError, "area", lambda inst: Instrument("x", [1.0] * u.keV, [2.0] * u.keV, [1.0])),
+    (u.UnitsError, "photon_flux has no units", lambda inst: inst.fold(np.ones(FINE.size - 1), FINE * u.keV)),
+    (u.UnitsError, "multiplied by the bin widths",
+     lambda inst: inst.fold(np.ones(FINE.size - 1) * PH / u.keV, FINE * u.keV)),
+    (InputError, "last axis must have 20000", lambda inst: inst.fold(np.ones(10) * PH, FINE * u.keV)),
+    (InputError, ">= 0", lambda inst: inst.fold(-np.ones(FINE.size - 1) * PH, FINE * u.keV)),
+    (u.UnitsError, "energy_edges", lambda inst: inst.fold(np.ones(FINE.size - 1) * PH, FINE * u.s)),
+    (InputError, "not defined", lambda inst: inst.count_rate_from_spectrum(_flat(FINE), FINE * u.keV, band="nope")),
+    (InputError, "does not overlap", lambda inst: inst.with_bands(far=[50, 60] * u.keV)),
+    (InputError, "no named bands", lambda inst: inst.band_matrix(FINE * u.keV)),
+])
+def test_bad_units_and_shapes(exc, match, call):
+    with pytest.raises(exc, match=match):
+        call(_STEPPED)
 
 
 def test_bad_redistribution():
@@ -325,6 +332,6 @@ def test_bad_redistribution():
 
 
 def test_modules_do_not_import_fiasco():
-    code = ("import sys, synthcorona.instruments.response, synthcorona.instruments.readers; "
-            "assert 'fiasco' not in sys.modules")
+    code = ("import sys, synthcorona.instruments.instrument, synthcorona.instruments.dem_response, "
+            "synthcorona.instruments.readers; assert 'fiasco' not in sys.modules")
     subprocess.run([sys.executable, "-c", code], check=True)
