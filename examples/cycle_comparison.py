@@ -19,8 +19,10 @@ import astropy.units as u
 
 from synthcorona.dem import GaussianDEM, IsothermalDEM
 from synthcorona.dimming import CME, Corona, DimmingScenario, Observation, Star
+from synthcorona.instruments.conversion import CountConversion, convert_count_rate
 from synthcorona.plotting.cycle import save_cycle_figures
-from synthcorona.products.cycle import CountConversion, CyclePhase, compare_cycle, convert_count_rate
+from synthcorona.products.cycle import compare_cycle
+from synthcorona.products.cycle_phase import CyclePhase
 
 HERE = pathlib.Path(__file__).resolve().parent
 

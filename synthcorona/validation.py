@@ -7,13 +7,28 @@ surfaces as a bare traceback from deep inside numpy.
 """
 from __future__ import annotations
 
+import re
+
 import astropy.units as u
 import numpy as np
 
 from .errors import InputError
 
-__all__ = ["as_quantity", "as_scalar", "check_finite", "check_range", "check_positive"]
+__all__ = ["as_quantity", "as_scalar", "check_finite", "check_range", "check_positive", "argument_name"]
 
+_IDENTIFIER = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
+
+
+def argument_name(name: str) -> str:
+    """The argument an error is about: the identifier at the start of ``name``.
+
+    ``name`` as passed to the checks below may describe the value more closely
+    (``"background[sc-fe9]"``, ``"density (from the RTV scaling law)"``, ``"phase of 'rise'"``);
+    the :attr:`~synthcorona.errors.InputError.argument` of the error is the plain argument
+    (``"background"``, ``"density"``, ``"phase"``).
+    """
+    m = _IDENTIFIER.match(str(name))
+    return m.group(0) if m else str(name)
 
 
 def _short(value) -> str:
@@ -57,7 +72,7 @@ def check_finite(name: str, value) -> None:
     """Raise :class:`InputError` if any element of ``value`` is NaN or infinite."""
     arr = np.asanyarray(getattr(value, "value", value), dtype=float)
     if not np.all(np.isfinite(arr)):
-        raise InputError(f"{name} contains NaN or infinite values: {_short(value)}")
+        raise InputError(f"{name} contains NaN or infinite values: {_short(value)}", argument=argument_name(name))
 
 
 def check_range(name: str, value, lo=None, hi=None, unit_label: str = "", inclusive=True) -> None:
@@ -80,7 +95,8 @@ def check_range(name: str, value, lo=None, hi=None, unit_label: str = "", inclus
         offending = arr[bad]
         raise InputError(
             f"{name}={_short(offending)}{(' ' + unit_label) if unit_label else ''} is outside the valid range "
-            f"{br[0]}{lo_s}, {hi_s}{br[1]}{(' ' + unit_label) if unit_label else ''}"
+            f"{br[0]}{lo_s}, {hi_s}{br[1]}{(' ' + unit_label) if unit_label else ''}",
+            argument=argument_name(name),
         )
 
 
@@ -94,6 +110,6 @@ def as_scalar(name: str, value, unit, lo=None, hi=None, unit_label: str = "", in
     q = as_quantity(name, value, unit)
     v = np.asarray(q.value, dtype=float)
     if v.ndim != 0:
-        raise InputError(f"{name} must be a single value, got shape {v.shape}")
+        raise InputError(f"{name} must be a single value, got shape {v.shape}", argument=argument_name(name))
     check_range(name, v, lo=lo, hi=hi, unit_label=unit_label, inclusive=inclusive)
     return float(v)

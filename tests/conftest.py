@@ -53,3 +53,21 @@ def small_build(fiasco_ready, chianti_path, tmp_path_factory):
     path = build_table(work / "small.nc", chianti=chianti_path, settings=settings, jobs=2, work_dir=work,
                        progress=False)
     return {"work": work, "path": path, "settings": settings, "chianti": chianti_path}
+
+
+#: Folder of the small input files shared by tests in several folders.
+DATA = pathlib.Path(__file__).parent / "data"
+
+
+@pytest.fixture(scope="session")
+def small_forecast():
+    """(inputs, dataset) of the small invented scenario tests/data/small_forecast.toml, run once."""
+    import warnings
+
+    from synthcorona.io.forecast_file import read_forecast_file
+    from synthcorona.products.forecast import run_forecast
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        inputs = read_forecast_file(DATA / "small_forecast.toml")
+        return inputs, run_forecast(inputs)

@@ -218,7 +218,7 @@ def test_build_bad_scheduler_and_jobs(tmp_path, monkeypatch, capsys):
         build_table(tmp_path / "x.nc")
     monkeypatch.delenv("SYNTHCORONA_SCHEDULER")
     # the command: one line naming the option's value, exit status 2
-    assert main(["build-table", "-o", str(tmp_path / "x.nc"), "--scheduler", "nowhere"]) == 2
+    assert main(["build-table", "--out", str(tmp_path / "x.nc"), "--scheduler", "nowhere"]) == 2
     err = capsys.readouterr().err
     assert "scheduler='nowhere'" in err and "Traceback" not in err
 

@@ -1,15 +1,16 @@
 """Command line: ``synthcorona <subcommand>``.
 
-The subcommands live in this package, one module each (see
-``synthcorona --help`` for the list). Every quantity on the command line or in a scenario file
-carries a unit string parsed by astropy ("10 pc", "1e51 cm-3", "0.1-2.4 keV"). User mistakes end
-with a one-line reason and exit status 2, never a traceback.
+The subcommands live in this package, one module each (see ``synthcorona --help`` for the list);
+each parses its options, calls a product (:mod:`synthcorona.products`), and hands the result to the
+writers (:mod:`synthcorona.io.writers`) and figures (:mod:`synthcorona.plotting`). Every quantity on
+the command line or in a scenario file carries a unit string parsed by astropy ("10 pc",
+"1e51 cm-3", "0.1-2.4 keV"). User mistakes end with a one-line reason and exit status 2, never a
+traceback.
 """
 from __future__ import annotations
 
 import argparse
 import importlib
-import os
 import sys
 
 __all__ = ["main", "build_parser", "COMMANDS"]
@@ -47,27 +48,14 @@ def main(argv=None) -> int:
     import astropy.units as u
 
     from ..errors import CliError, InputError
-    from ..settings import TABLE_ENV
 
     args = build_parser().parse_args(argv)
-    table = getattr(args, "emissivity_table", None)
-    saved = os.environ.get(TABLE_ENV)
     try:
-        if table is not None:
-            if not os.path.isfile(table):
-                raise CliError(f"--table {table}: no such emissivity table file")
-            os.environ[TABLE_ENV] = os.path.abspath(table)   # every part of the run (and its workers) uses it
         return int(args.func(args) or 0)
     except (CliError, InputError, u.UnitsError) as exc:
         msg = " ".join(str(exc).split())
         print(f"synthcorona {args.command}: error: {msg}", file=sys.stderr)
         return 2
-    finally:
-        if table is not None:
-            if saved is None:
-                os.environ.pop(TABLE_ENV, None)
-            else:
-                os.environ[TABLE_ENV] = saved
 
 
 if __name__ == "__main__":

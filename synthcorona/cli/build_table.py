@@ -10,7 +10,7 @@ HELP = "build an emissivity table from a CHIANTI copy"
 def add_arguments(p) -> None:
     """Options of ``synthcorona build-table``."""
     p.add_argument("--chianti", help="ASCII CHIANTI tree or .tar.xz (default: $SYNTHCORONA_CHIANTI, then fiasco's)")
-    p.add_argument("--output", "-o", required=True, help="netCDF file to write")
+    p.add_argument("--out", required=True, metavar="FILE", help="netCDF file to write")
     p.add_argument("--jobs", "-j", type=int, default=0,
                    help="worker processes of the local dask cluster (default 0: one per CPU core; "
                         "1: no cluster, run in this process)")
@@ -36,13 +36,14 @@ def add_arguments(p) -> None:
 
 
 def run(args) -> int:
+    """Build the table and print where it was written; returns 0."""
     from ..atomic.builder import BuildSettings, build_table, default_energy_grid
 
     logT = np.round(np.arange(args.logT_min, args.logT_max + 1e-9, args.logT_step), 6)
     settings = BuildSettings(logT=logT, log_density=np.array(args.log_densities, dtype=float),
                              energy=default_energy_grid(args.energy_points), elements=args.elements,
                              line_threshold=args.line_threshold, two_ion_max_levels=args.two_ion_max_levels)
-    out = build_table(args.output, chianti=args.chianti, settings=settings, jobs=args.jobs,
+    out = build_table(args.out, chianti=args.chianti, settings=settings, jobs=args.jobs,
                       work_dir=args.work_dir, progress=not args.quiet, scheduler=args.scheduler,
                       retries=args.retries)
     print(f"wrote {out}")

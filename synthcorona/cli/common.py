@@ -1,10 +1,13 @@
-"""Helpers shared by the subcommands: unit-string parsing and the user-mistake exception."""
+"""Helpers shared by the subcommands: reading quantities, bands and the emissivity table from the
+command line, and the output folder. Every user mistake becomes a :class:`~synthcorona.errors.CliError`
+naming the option."""
 from __future__ import annotations
 
-from ..errors import CliError
+import os
 
-__all__ = ["parse_quantity", "parse_band", "add_table_option"]
+from ..errors import CliError, InputError
 
+__all__ = ["parse_quantity", "parse_band", "parse_range", "add_table_option", "load_table", "output_folder"]
 
 
 def parse_quantity(text: str, unit: str, what: str):
@@ -22,23 +25,72 @@ def parse_quantity(text: str, unit: str, what: str):
 
 
 def parse_band(text: str, what: str = "--band"):
-    """'0.1-2.4 keV' or '171-175 Angstrom' -> Quantity pair (energy or wavelength)."""
+    """'0.1-2.4 keV' or '171-175 Angstrom' -> :class:`~synthcorona.spectral.Band` (read by :meth:`Band.parse`)."""
     import astropy.units as u
 
+    from ..spectral import Band
+
     try:
-        rng, unit = text.strip().split(None, 1) if " " in text.strip() else (None, None)
-        lo, hi = rng.split("-")
-        q = u.Quantity([float(lo), float(hi)], u.Unit(unit))
-    except (ValueError, AttributeError, TypeError):
-        raise CliError(f"{what}: cannot read '{text}'; write e.g. '0.1-2.4 keV' or '171-175 Angstrom'") from None
-    if q.unit.physical_type not in ("energy", "length"):
-        raise CliError(f"{what}: '{text}' must be in energy or wavelength units")
-    return q
+        return Band.parse(text, what)
+    except (InputError, u.UnitsError) as exc:
+        raise CliError(str(exc) if getattr(exc, "argument", None) == what else f"{what} '{text}': {exc}") from None
+
+
+def parse_range(values, unit: str, what: str, unit_what: str = "--wavelength-unit"):
+    """Two limits, each a quantity with a unit ("10 Angstrom", "0.5 keV") or a plain number in ``unit``
+    (the value of option ``unit_what``), as a :class:`~synthcorona.spectral.Band` (wavelengths or
+    energies, lower limit first)."""
+    import astropy.units as u
+
+    from ..spectral import Band
+
+    try:
+        plain_unit = u.Unit(unit)
+    except (TypeError, ValueError):
+        raise CliError(f"{unit_what}: cannot read the unit '{unit}'") from None
+    limits = []
+    for text in values:
+        try:
+            limits.append(float(text) * plain_unit)
+            continue
+        except ValueError:
+            pass
+        try:
+            limits.append(u.Quantity(text))
+        except (TypeError, ValueError):
+            raise CliError(f"{what}: cannot read '{text}' as a number or a quantity with a unit "
+                           "(e.g. '10 Angstrom')") from None
+    lo, hi = limits
+    try:
+        return Band(lo, hi.to(lo.unit, equivalencies=u.spectral()), what)
+    except (InputError, u.UnitsError) as exc:
+        raise CliError(f"{what} {' '.join(values)}: {exc}") from None
 
 
 def add_table_option(p) -> None:
-    """``--table FILE``: run the whole subcommand on a rebuilt emissivity table (``synthcorona.cli.main``
-    puts it in ``$SYNTHCORONA_TABLE`` for the duration of the run)."""
+    """``--table FILE``: run the whole subcommand on a rebuilt emissivity table (loaded once by
+    :func:`load_table` and passed to every computation)."""
     p.add_argument("--table", dest="emissivity_table", metavar="FILE",
-                   help="emissivity table built with 'synthcorona build-table' (default: the embedded CHIANTI 10.1 "
-                        "composite table, or $SYNTHCORONA_TABLE)")
+                   help="emissivity table built with 'synthcorona build-table' (default: $SYNTHCORONA_TABLE, else "
+                        "the embedded CHIANTI 10.1 composite table)")
+
+
+def load_table(args):
+    """The emissivity table of ``--table`` (checked to exist), or the default one
+    (:func:`synthcorona.emissivity.resolve_table`)."""
+    from ..emissivity import resolve_table
+
+    path = getattr(args, "emissivity_table", None)
+    if path is not None and not os.path.isfile(path):
+        raise CliError(f"--table {path}: no such emissivity table file")
+    return resolve_table(path)
+
+
+def output_folder(path, option: str = "--out"):
+    """The output folder ``path`` (created if needed) as a ``pathlib.Path``."""
+    from ..io.writers import make_folder
+
+    try:
+        return make_folder(path)
+    except OSError as exc:
+        raise CliError(f"{option}={path}: cannot create the output folder ({exc.strerror})") from None

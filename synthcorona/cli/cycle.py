@@ -15,7 +15,7 @@ from __future__ import annotations
 import pathlib
 
 from ..errors import CliError
-from .common import add_table_option
+from .common import add_table_option, load_table, output_folder
 
 NAME = "cycle"
 HELP = "compare fluxes, count rates, hardness and dimming detectability across an activity cycle"
@@ -30,30 +30,17 @@ def add_arguments(p) -> None:
     add_table_option(p)
     p.add_argument("--realisations", type=int, default=None, metavar="N",
                    help="Monte Carlo realisations per detection probability (a count, no unit; default: "
-                        "[dimming] realisations of the file, else the reference scenario's, else 1000)")
+                        "[dimming] realisations of the file, else the reference scenario's, else 1000; checked "
+                        "before any computation)")
     p.add_argument("--no-figures", action="store_true", help="do not write the PNG figures (no unit)")
-
-
-def _csv_table(per):
-    """The per-phase table with units moved into the column names (plain CSV keeps no units)."""
-    from astropy.table import Table
-
-    t = Table()
-    for name in per.colnames:
-        col = per[name]
-        unit = getattr(col, "unit", None)
-        label = f"{name} [{unit.to_string()}]" if unit is not None and str(unit) not in ("", "dimensionless") else name
-        t[label] = getattr(col, "value", col)
-    return t
 
 
 def run(args) -> int:
     """Read the cycle file, compute the comparison, write netCDF/ECSV/CSV/PNG and print a summary."""
-    import json
-
-    import numpy as np
-
+    from ..dimming.sizes import MIN_EXCEEDANCES
     from ..io.cycle_file import read_cycle_file
+    from ..io.writers import write_figures, write_netcdf, write_table
+    from ..plotting.cycle import cycle_figures
     from ..products.cycle import cycle_tables
 
     if args.realisations is not None and args.realisations < 1:
@@ -61,27 +48,27 @@ def run(args) -> int:
     path = pathlib.Path(args.cycle_file)
     if not path.is_file():
         raise CliError(f"{path}: file not found")
+    table = load_table(args)
     inputs = read_cycle_file(path)
-    ds = inputs.run(n_realisations=args.realisations)
-    out = pathlib.Path(args.out)
-    out.mkdir(parents=True, exist_ok=True)
-    nc = ds.copy()
-    nc.attrs = {k: (v if isinstance(v, (str, int, float)) else json.dumps(v, default=str)) for k, v in ds.attrs.items()}
-    nc.to_netcdf(out / "cycle.nc", engine="h5netcdf")
+    if args.realisations is not None and args.realisations < inputs.minimum_realisations:
+        raise CliError(f"--realisations={args.realisations}: the reference scenario's false-alarm probability "
+                       f"{inputs.reference.observation.false_alarm:g} needs at least {inputs.minimum_realisations} "
+                       f"({MIN_EXCEEDANCES} expected false alarms)")
+    ds = inputs.run(n_realisations=args.realisations, table=table)
+    out = output_folder(args.out)
+    written = [write_netcdf(ds, out / "cycle.nc")]
     per, amp = cycle_tables(ds)
-    for t in (per, amp):
-        t.meta = {k: (v if isinstance(v, (str, int, float)) else str(v)) for k, v in t.meta.items()}
-    per.write(out / "cycle_phases.ecsv", overwrite=True)
-    _csv_table(per).write(out / "cycle_phases.csv", format="ascii.csv", overwrite=True)
-    amp.write(out / "cycle_amplitudes.ecsv", overwrite=True)
-    written = ["cycle.nc", "cycle_phases.ecsv", "cycle_phases.csv", "cycle_amplitudes.ecsv"]
+    written += write_table(per, out / "cycle_phases.ecsv", csv=True)
+    written += write_table(amp, out / "cycle_amplitudes.ecsv")
     if not args.no_figures:
-        import matplotlib
+        written += write_figures(cycle_figures(ds), out, dpi=120)
+    _summary(ds, inputs, out, [p.name for p in written])
+    return 0
 
-        matplotlib.use("Agg")
-        from ..plotting.cycle import save_cycle_figures
 
-        written += [p.name for p in save_cycle_figures(ds, out)]
+def _summary(ds, inputs, out, written) -> None:
+    """A few lines for the terminal."""
+    import numpy as np
 
     unit = "yr" if ds["phase"].attrs.get("units") == "yr" else ""
     print(f"{inputs.title}: {ds.sizes['phase']} phases; star at {ds.attrs['star_distance_pc']:g} pc, "
@@ -113,4 +100,3 @@ def run(args) -> int:
             if note:
                 print(f"  note ({lab}): {note}")
     print(f"wrote {', '.join(written)} to {out}")
-    return 0

@@ -1,12 +1,12 @@
-"""``synthcorona emission``: spectrum and band fluxes of a DEM (Gaussian in log T or isothermal)."""
+"""``synthcorona emission``: spectrum and band fluxes of a DEM (Gaussian in log T or isothermal).
+
+Writes band_fluxes.ecsv (energy flux at the observer and luminosity per band), spectrum.nc (flux
+density at the observer over ``--wavelength-range`` in bins of ``--wavelength-bin``) and
+spectrum.png; the numbers come from :func:`synthcorona.products.spectrum.dem_spectrum`.
+"""
 from __future__ import annotations
 
-import json
-import pathlib
-
-import numpy as np
-
-from .common import parse_band, parse_quantity
+from .common import add_table_option, load_table, output_folder, parse_band, parse_quantity, parse_range
 
 NAME = "emission"
 HELP = "spectrum and band fluxes of a DEM (Gaussian in log T or isothermal)"
@@ -21,25 +21,26 @@ def add_arguments(p) -> None:
     p.add_argument("--distance", default="8.4 pc", help="distance of the star (default '8.4 pc')")
     p.add_argument("--density", default="1e10 cm-3", help="electron density (default '1e10 cm-3')")
     p.add_argument("--abundances", default="coronal", help="abundance set name (default 'coronal')")
-    p.add_argument("--band", action="append", help="band, e.g. '0.1-2.4 keV' or '171-175 Angstrom' (repeatable)")
-    p.add_argument("--wmin", type=float, default=1.0, help="spectrum start [Angstrom] (default 1)")
-    p.add_argument("--wmax", type=float, default=400.0, help="spectrum end [Angstrom] (default 400)")
-    p.add_argument("--wstep", type=float, default=0.02, help="spectrum bin [Angstrom] (default 0.02)")
-    p.add_argument("--table", help="emissivity table file (default: embedded)")
+    p.add_argument("--band", action="append", help="band, e.g. '0.1-2.4 keV' or '171-175 Angstrom' (repeatable; "
+                                                    "default: six X-ray and EUV bands)")
+    p.add_argument("--wavelength-range", nargs=2, metavar=("MIN", "MAX"), default=["1", "400"],
+                   help="limits of the spectrum: two quantities ('10 Angstrom' '40 Angstrom', or energies "
+                        "'0.5 keV' '2 keV') or two numbers in --wavelength-unit (default 1 400)")
+    p.add_argument("--wavelength-unit", default="Angstrom",
+                   help="unit of plain numbers in --wavelength-range (default 'Angstrom')")
+    p.add_argument("--wavelength-bin", default="0.02 Angstrom",
+                   help="bin width of the spectrum (default '0.02 Angstrom')")
+    add_table_option(p)
     p.add_argument("--out", default="synthcorona_out", help="output folder (default 'synthcorona_out')")
 
 
 def run(args) -> int:
-    import astropy.units as u
-    import matplotlib
+    """Compute and write the spectrum and band fluxes of the DEM; returns 0."""
+    from ..dem import GaussianDEM, IsothermalDEM
+    from ..io.writers import write_figure, write_netcdf, write_table
+    from ..plotting.spectrum import plot_spectrum
+    from ..products.spectrum import DEFAULT_FLUX_BANDS, dem_spectrum
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-    from astropy.table import QTable
-
-    from .. import GaussianDEM, IsothermalDEM, band_flux, load_emissivity, luminosity, synthesize
-
-    table = load_emissivity(args.table)
     em = parse_quantity(args.em, "cm-3", "--em")
     dist = parse_quantity(args.distance, "pc", "--distance")
     dens = parse_quantity(args.density, "cm-3", "--density")
@@ -47,38 +48,20 @@ def run(args) -> int:
         dem = IsothermalDEM(temperature=parse_quantity(args.temperature, "K", "--temperature"), total_em=em)
     else:
         dem = GaussianDEM(peak_logT=args.peak_logT, width_logT=args.width_logT, total_em=em)
-    bands = [parse_band(b) for b in (args.band or ["0.1-2.4 keV", "0.3-2.0 keV", "2.0-10.0 keV", "165-180 Angstrom",
-                                               "185-200 Angstrom", "60-400 Angstrom"])]
-    out = pathlib.Path(args.out)
-    out.mkdir(parents=True, exist_ok=True)
-    rows = []
-    for b in bands:
-        f = band_flux(dem, band=b, distance=dist, table=table, abundances=args.abundances, density=dens)
-        L = luminosity(dem, band=b, table=table, abundances=args.abundances, density=dens)
-        rows.append((f"{b[0].value:g}-{b[1].value:g} {b.unit}", f.to(u.erg / u.s / u.cm ** 2), L.to(u.erg / u.s)))
-    qt = QTable(rows=rows, names=("band", "flux", "luminosity"))
-    qt.meta.update({"dem": repr(dem), "distance": str(dist), "abundances": args.abundances, "density": str(dens),
-                    "table": str(table.path), "chianti_version": table.provenance.get("chianti_version"),
-                    "table_content_hash": table.provenance.get("content_hash")})
-    qt.write(out / "band_fluxes.ecsv", overwrite=True)
-    spec = synthesize(dem, wavelength=np.arange(args.wmin, args.wmax, args.wstep) * u.AA, table=table,
-                      abundances=args.abundances, density=dens, distance=dist)
-    spec.attrs = {k: (v if isinstance(v, (str, int, float)) else json.dumps(v, default=str)) for k, v in spec.attrs.items()}
-    spec.to_netcdf(out / "spectrum.nc", engine="h5netcdf")
-    fig, ax = plt.subplots(figsize=(9, 4))
-    ax.semilogy(spec.wavelength, np.maximum(spec.values, 1e-300), lw=0.6)
-    ax.set_xlabel("wavelength [Angstrom]")
-    ax.set_ylabel(f"flux density [{spec.attrs['units']}]")
-    pos = spec.values[spec.values > 0]
-    if pos.size:
-        ax.set_ylim(pos.max() * 1e-6, pos.max() * 3)
-    ax.set_title(f"{dem!r} at {dist}")
-    fig.tight_layout()
-    fig.savefig(out / "spectrum.png", dpi=120)
+    bands = [parse_band(b) for b in args.band] if args.band else list(DEFAULT_FLUX_BANDS)
+    limits = parse_range(args.wavelength_range, args.wavelength_unit, "--wavelength-range")
+    step = parse_quantity(args.wavelength_bin, "Angstrom", "--wavelength-bin")
+    table = load_table(args)
+    res = dem_spectrum(dem, dist, bands=bands, density=dens, abundances=args.abundances, wavelength_range=limits,
+                       wavelength_bin=step, table=table)
+    out = output_folder(args.out)
+    written = write_table(res.fluxes, out / "band_fluxes.ecsv")
+    written.append(write_netcdf(res.spectrum, out / "spectrum.nc"))
+    written.append(write_figure(plot_spectrum(res.spectrum, title=f"{dem!r} at {dist}"), out / "spectrum.png",
+                                dpi=120))
     print(f"DEM: {dem!r}; distance {dist}; abundances {args.abundances}; n_e {dens}")
     print(f"table: {table.path.name} (CHIANTI {table.provenance.get('chianti_version')}, see provenance)")
-    for name, f, L in rows:
-        print(f"  {name:>22s}: flux {f.value:10.3e} erg s-1 cm-2   L {L.value:10.3e} erg s-1")
-    print(f"wrote {out/'band_fluxes.ecsv'}, {out/'spectrum.nc'}, {out/'spectrum.png'}")
+    for r in res.fluxes:
+        print(f"  {r['band']:>22s}: flux {r['flux'].value:10.3e} erg s-1 cm-2   L {r['luminosity'].value:10.3e} erg s-1")
+    print(f"wrote {', '.join(str(p) for p in written)}")
     return 0
-

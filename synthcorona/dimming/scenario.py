@@ -146,7 +146,8 @@ class CME:
     def __post_init__(self):
         m = mr.check_mass("mass", self.mass)
         if m.ndim != 0:
-            raise InputError("mass must be a single value (pass arrays to DimmingScenario.depth(mass=...))")
+            raise InputError("mass must be a single value (pass arrays to DimmingScenario.depth(mass=...))",
+                             argument="mass")
         mr.check_escape_fraction(self.escape_fraction)
         check_range("expansion_factor", self.expansion_factor, lo=1.0, hi=1e3)
         check_range("expanding_fraction", self.expanding_fraction, lo=0.0, hi=1.0)
@@ -316,7 +317,7 @@ class DimmingScenario:
             bad = {self.labels[i]: f"{self.quiescent_rate[i]:.3g} ct/s" for i in np.flatnonzero(dead)}
             raise InputError(f"band {bad} has no counts from the quiescent corona (rate below "
                              f"{MIN_QUIESCENT_RATE:g} ct/s): its dimming depth is undefined; choose a band where the "
-                             "corona emits")
+                             "corona emits", argument="band")
         self.depth_per_gram = self.em_per_gram * (self.kernel @ self.removal_weights) / base
         self.expansion_depth = -(self.kernel @ self.expansion_change) / base
         self.quiescent_flux = (self.flux_kernel @ self.quiescent_weights) / (4 * np.pi * d_cm ** 2)
@@ -335,7 +336,8 @@ class DimmingScenario:
         if isinstance(bg, dict):
             unknown = set(bg) - set(self.labels)
             if unknown:
-                raise InputError(f"background has bands {sorted(unknown)} not in the scenario's bands {self.labels}")
+                raise InputError(f"background has bands {sorted(unknown)} not in the scenario's bands {self.labels}",
+                                 argument="background")
             vals = [bg.get(lab, 0 * u.ct / u.s) for lab in self.labels]
         else:
             vals = [bg] * len(self.labels)
@@ -407,7 +409,7 @@ class DimmingScenario:
             raise InputError(
                 f"mass={m.max():.4g} g needs more emission measure than the corona holds at the source temperatures: "
                 f"the largest removable mass at density={self.density:.4g} cm-3 is {mmax:.4g} g (valid range of "
-                f"mass: [0, {mmax:.4g}] g)")
+                f"mass: [0, {mmax:.4g}] g)", argument="mass")
 
     def depths_for(self, mass_g) -> np.ndarray:
         """Full fractional count-rate depths (..., n_bands) for masses in grams (plain floats)."""
@@ -432,12 +434,12 @@ class DimmingScenario:
             return self.edges
         if isinstance(times, (int, np.integer)):
             if times < 1:
-                raise InputError(f"times={times} bins: give at least 1")
+                raise InputError(f"times={times} bins: give at least 1", argument="times")
             return np.arange(int(times) + 1) * self.bin_width
         t = as_quantity("times", times, u.s).value
         t = np.atleast_1d(np.asarray(t, dtype=float))
         if t.ndim != 1 or np.any(np.diff(t) <= 0):
-            raise InputError("times must be strictly increasing bin centres (1-D time Quantity)")
+            raise InputError("times must be strictly increasing bin centres (1-D time Quantity)", argument="times")
         return np.concatenate([t - 0.5 * self.bin_width, [t[-1] + 0.5 * self.bin_width]])
 
     def _components(self, edges, mass_g, t0=None, recovery_time=None, flare_scale=1.0):
@@ -557,7 +559,7 @@ class DimmingScenario:
         if band is None:
             return None
         if band not in self.labels:
-            raise InputError(f"band={band!r} is not one of {self.labels}")
+            raise InputError(f"band={band!r} is not one of {self.labels}", argument="band")
         return self.labels.index(band)
 
     def detection_probability(self, n_realisations: int = 10_000, statistic: str = "window", seed=None,
@@ -599,7 +601,7 @@ class DimmingScenario:
         """
         if self.escape_fraction == 0:
             raise InputError("escape_fraction=0 (confined eruption): no mass leaves, so no mass-loss dimming is "
-                             "detectable; valid range for this calculation: (0, 1]")
+                             "detectable; valid range for this calculation: (0, 1]", argument="escape_fraction")
         b = self._band_index(band if band is not None else self.best_band())
         try:
             lo, hi = bracket

@@ -74,7 +74,7 @@ import numpy as np
 import xarray as xr
 from scipy import optimize, special
 
-from ..errors import InputError
+from ..errors import BracketError, InputError
 from ..validation import check_finite, check_range
 from .noise import (
     MEMORY_BUDGET,
@@ -990,10 +990,11 @@ def minimum_detectable(param_to_expected: Callable, bin_width, *, bracket, targe
     xlo, xhi = math.log(lo_v), math.log(hi_v)
     p_lo, p_hi = prob(xlo), prob(xhi)
     if (p_lo - target) * (p_hi - target) > 0 or (p_lo == target == p_hi):
-        raise InputError(
+        raise BracketError(
             f"bracket=({lo_v:g}, {hi_v:g}){' ' + str(unit) if unit else ''} does not straddle "
             f"target_probability={target:g}: P(detect) = {p_lo:.4g} at the lower end and {p_hi:.4g} at the upper "
-            f"end (false_alarm={setup.alpha:g}, n_realisations={setup.n}); widen the bracket")
+            f"end (false_alarm={setup.alpha:g}, n_realisations={setup.n}); widen the bracket",
+            bracket=(lo_v, hi_v), values=(p_lo, p_hi), target=target, unit=str(unit) if unit else "")
     if p_lo == target:
         x_root = xlo
     elif p_hi == target:

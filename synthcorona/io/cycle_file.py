@@ -20,10 +20,8 @@ import astropy.units as u
 from ..errors import InputError, ScenarioError
 from .toml import Section, abundances_from_key, dem_from_section, load_toml
 
-__all__ = ["CycleInputs", "read_cycle_file", "DEFAULT_BANDS", "DEFAULT_REALISATIONS"]
+__all__ = ["CycleInputs", "read_cycle_file", "DEFAULT_REALISATIONS"]
 
-#: Bands of the fluxes when ``[report.bands]`` is absent.
-DEFAULT_BANDS = {"0.1-2.4 keV": [0.1, 2.4] * u.keV, "100-400 Angstrom": [100.0, 400.0] * u.AA}
 #: Monte Carlo realisations when neither ``[dimming] realisations`` nor the reference file gives them.
 DEFAULT_REALISATIONS = 1000
 
@@ -51,15 +49,27 @@ class CycleInputs:
     reference_path: str | None = None
     extra: dict = field(default_factory=dict)
 
-    def run(self, n_realisations: int | None = None):
-        """:func:`synthcorona.products.cycle.compare_cycle` with these inputs (``n_realisations`` overrides the file)."""
+    @property
+    def minimum_realisations(self) -> int:
+        """The fewest Monte Carlo realisations the reference scenario's false-alarm probability allows
+        (:func:`synthcorona.dimming.sizes.minimum_realisations`; 1 without a reference scenario)."""
+        from ..dimming.sizes import minimum_realisations
+
+        if self.reference is None:
+            return 1
+        return minimum_realisations(self.reference.observation.false_alarm)
+
+    def run(self, n_realisations: int | None = None, table=None):
+        """:func:`synthcorona.products.cycle.compare_cycle` with these inputs (``n_realisations`` overrides the
+        file; ``table``: emissivity table, an EmissivityTable or a path, default see
+        :func:`synthcorona.emissivity.resolve_table`)."""
         from ..products.cycle import compare_cycle
 
-        ds = _wrap(self.source, compare_cycle,self.phases, self.star, bands=self.bands, instruments=self.instruments or None,
-                           hardness=self.hardness, conversion=self.conversion, reference=self.reference,
-                           n_realisations=n_realisations or self.n_realisations, seed=self.seed,
-                           minimum_mass=self.minimum_mass, abundances=self.abundances, density=self.density,
-                           period=self.period, name=self.star_name or self.title)
+        ds = _wrap(self.source, compare_cycle, self.phases, self.star, bands=self.bands,
+                   instruments=self.instruments or None, hardness=self.hardness, conversion=self.conversion,
+                   reference=self.reference, n_realisations=n_realisations or self.n_realisations, seed=self.seed,
+                   minimum_mass=self.minimum_mass, abundances=self.abundances, density=self.density,
+                   period=self.period, name=self.star_name or self.title, table=table)
         ds.attrs["cycle_file"] = self.source
         ds.attrs["cycle_title"] = self.title
         if self.reference_path:
@@ -86,7 +96,7 @@ def _phase_value(p: Section):
 
 
 def _phases(root: Section) -> list:
-    from ..products.cycle import CyclePhase
+    from ..products.cycle_phase import CyclePhase
 
     secs = root.sections("phase", required=True)
     if len(secs) < 2:
@@ -139,7 +149,8 @@ def _abs_spec(spec: str, file: str) -> str:
 
 
 def _report(root: Section):
-    from ..products.cycle import resolve_channels
+    from ..instruments.channels import resolve_channels
+    from ..products.cycle import DEFAULT_BANDS
 
     r = root.section("report")
     if r is None:
@@ -161,7 +172,8 @@ def _report(root: Section):
 
 
 def _conversion(root: Section):
-    from ..products.cycle import CountConversion, resolve_channels
+    from ..instruments.channels import resolve_channels
+    from ..instruments.conversion import CountConversion
 
     c = root.section("conversion")
     if c is None:
@@ -197,6 +209,8 @@ def read_cycle_file(path_or_text, *, name: str | None = None) -> CycleInputs:
 
     Every mistake raises :class:`~synthcorona.errors.ScenarioError` naming the file and the key.
     """
+    from ..dimming.sizes import MIN_EXCEEDANCES, minimum_realisations
+
     root = load_toml(path_or_text, name=name)
     is_file = root.file != "<string>" and pathlib.Path(root.file).is_file()
     title = root.string("title", default=pathlib.Path(root.file).stem if is_file else "activity cycle")
@@ -215,10 +229,11 @@ def read_cycle_file(path_or_text, *, name: str | None = None) -> CycleInputs:
         raise root.error("period", "applies to phases given as times (\"3 yr\"); these phases are cycle fractions")
     bands, instruments, hardness = _report(root)
     if hardness is not None:
-        from ..products.cycle import _hardness_pairs, resolve_channels
+        from ..instruments.channels import resolve_channels
+        from ..products.cycle import hardness_pairs
 
         labels = [c[0] for c in resolve_channels(instruments)] if instruments else []
-        _wrap(f"{root.file}: [report] hardness", _hardness_pairs, hardness, labels)
+        _wrap(f"{root.file}: [report] hardness", hardness_pairs, hardness, labels)
     conversion = _conversion(root)
     d = root.section("dimming")
     mc = getattr(reference, "montecarlo", None)
@@ -230,10 +245,11 @@ def read_cycle_file(path_or_text, *, name: str | None = None) -> CycleInputs:
         seed = d.number("seed", default=seed, integer=True, lo=0)
         min_mass = d.boolean("minimum_mass", default=False)
         fa = float(reference.observation.false_alarm)
-        if n_real * fa < 10 - 1e-9 and d.has("realisations"):
+        need = minimum_realisations(fa)
+        if d.has("realisations") and n_real < need:
             raise d.error("realisations", f"too few for the reference scenario's false_alarm={fa:g}: the detection "
-                                          f"threshold needs >= 10 expected false alarms; valid range "
-                                          f">= {int(round(10 / fa + 0.4999))}")
+                                          f"threshold needs >= {MIN_EXCEEDANCES} expected false alarms; valid range "
+                                          f">= {need}")
         d.finish()
     root.finish()
     return CycleInputs(title=title, star=star, star_name=star_name, phases=phases, bands=bands,

@@ -15,7 +15,6 @@ energy with :func:`flare_energy_from_class`.
 from __future__ import annotations
 
 import dataclasses
-import math
 import pathlib
 import re
 import warnings
@@ -38,7 +37,6 @@ X1_ENERGY_ERG = 1e32
 #: Detection statistics of :meth:`DimmingScenario.detection_probability`.
 STATISTICS = ("window", "likelihood")
 
-_PC = (1 * u.pc).to(u.cm)
 _CLASS_RE = re.compile(r"^\s*([ABCMX])\s*([0-9]+(?:\.[0-9]*)?)\s*$", re.IGNORECASE)
 
 
@@ -114,8 +112,12 @@ class ForecastInputs:
     flare_class: str | None = None
     star_name: str | None = None
 
-    def build_scenario(self, **changes):
-        """A new :class:`DimmingScenario` from these inputs with fields replaced (``star=``, ``corona=``, ...)."""
+    def build_scenario(self, *, table=None, **changes):
+        """A new :class:`DimmingScenario` from these inputs with fields replaced (``star=``, ``corona=``, ...).
+
+        ``table``: emissivity table of the scenario (an EmissivityTable or a path; default: see
+        :func:`synthcorona.emissivity.resolve_table`).
+        """
         from ..dimming.scenario import DimmingScenario
 
         kw = dict(star=self.star, corona=self.corona, cme=self.cme, flare=self.flare, instrument=self.instrument,
@@ -123,7 +125,16 @@ class ForecastInputs:
         kw.update(changes)
         obs = kw.pop("observation")
         return DimmingScenario(kw.pop("star"), kw.pop("corona"), kw.pop("cme"), kw.pop("flare"), kw.pop("instrument"),
-                               obs, **kw)
+                               obs, table=table, **kw)
+
+    def with_scenario(self, table=None) -> "ForecastInputs":
+        """These inputs with ``scenario`` built on ``table`` (:meth:`build_scenario`); a mistake the
+        scenario finds (e.g. a CME mass above what the corona holds) raises a :class:`ScenarioError`
+        naming the file and the table it belongs to."""
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            scenario = _wrap(Section({}, "", self.source), None, self.build_scenario, table=table)
+        return dataclasses.replace(self, scenario=scenario)
 
 
 # ----------------------------------------------------------------------------- sections
@@ -134,17 +145,16 @@ _OWNER = {"mass": "[cme] mass", "distance": "[star] distance", "density": "[coro
 
 
 def _wrap(sec: Section, key: str | None, fn, *args, **kwargs):
-    """Call ``fn``; an :class:`InputError` from it becomes a ScenarioError naming the file and table."""
+    """Call ``fn``; an :class:`InputError` from it becomes a ScenarioError naming the file and table (at the
+    top level, the table of the error's :attr:`~synthcorona.errors.InputError.argument`)."""
     try:
         return fn(*args, **kwargs)
     except ScenarioError:
         raise
     except InputError as exc:
         where = sec.where(key).rstrip(":")
-        if not sec.path and key is None:
-            m = re.match(r"^\s*([a-z_]+)[=\[ ]", str(exc))
-            if m and m.group(1) in _OWNER:
-                where = f"{sec.file}: {_OWNER[m.group(1)]}"
+        if not sec.path and key is None and exc.argument in _OWNER:
+            where = f"{sec.file}: {_OWNER[exc.argument]}"
         raise ScenarioError(f"{where}: {exc}") from None
 
 
@@ -391,15 +401,20 @@ def _observation(root: Section, labels):
 
 
 def _montecarlo(root: Section, mass, false_alarm: float):
+    from ..dimming.sizes import MIN_EXCEEDANCES, minimum_realisations
+    from ..products.forecast import REALISATIONS_RANGE
+
     m = root.section("montecarlo")
     if m is None:
         m = Section({}, "montecarlo", root.file)
-    mc = MonteCarlo(realisations=m.number("realisations", default=2000, lo=100, hi=1_000_000, integer=True),
+    lo, hi = REALISATIONS_RANGE
+    mc = MonteCarlo(realisations=m.number("realisations", default=2000, lo=lo, hi=hi, integer=True),
                     seed=m.number("seed", default=0, lo=0, hi=2 ** 63 - 1, integer=True),
                     statistic=m.string("statistic", default="window", choices=STATISTICS))
-    if mc.realisations * false_alarm < 10:
+    need = minimum_realisations(false_alarm)
+    if mc.realisations < need:
         raise m.error("realisations", f"too few to calibrate the detection threshold at [observation] false_alarm = "
-                                      f"{false_alarm:g}: give at least {math.ceil(10 / false_alarm)} (10 / false_alarm)")
+                                      f"{false_alarm:g}: give at least {need} ({MIN_EXCEEDANCES} / false_alarm)")
     target = m.number("target_probability", default=0.5, lo=0.0, lo_inclusive=False, hi=1.0, hi_inclusive=False)
     if m.has("mass_grid") and isinstance(m.data["mass_grid"], dict):
         g = m.section("mass_grid")
@@ -422,6 +437,8 @@ def _montecarlo(root: Section, mass, false_alarm: float):
 
 
 def _output(root: Section):
+    from ..products.spectrum import DEFAULT_FLUX_BANDS
+
     o = root.section("output")
     if o is None:
         o = Section({}, "output", root.file)
@@ -435,20 +452,20 @@ def _output(root: Section):
         tmp = Section({f"flux_bands[{i}]": v for i, v in enumerate(raw)}, o.path, o.file)
         out["flux_bands"] = [tmp.band(k, required=True) for k in list(tmp.data)]
     else:
-        out["flux_bands"] = [u.Quantity(b, unit) for b, unit in (([0.1, 2.4], u.keV), ([0.3, 2.0], u.keV),
-                                                                  ([2.0, 10.0], u.keV), ([165.0, 180.0], u.AA),
-                                                                  ([185.0, 200.0], u.AA), ([60.0, 400.0], u.AA))]
+        out["flux_bands"] = [b.quantity for b in DEFAULT_FLUX_BANDS]
     o.finish()
     return out
 
 
-def read_forecast_file(path_or_text, *, name: str | None = None, build: bool = True) -> ForecastInputs:
+def read_forecast_file(path_or_text, *, name: str | None = None, build: bool = True, table=None) -> ForecastInputs:
     """Read a forecast scenario (TOML file path, or TOML text) into :class:`ForecastInputs`.
 
-    Builds the :class:`~synthcorona.dimming.scenario.DimmingScenario` (loads the embedded
-    emissivity table and the instruments; ``build=False`` leaves ``scenario`` None, for callers
-    that build their own variants with :meth:`ForecastInputs.build_scenario`). Every mistake raises :class:`ScenarioError` naming the
-    file and the key. Keys: ``docs/scenario_reference.md``.
+    Builds the :class:`~synthcorona.dimming.scenario.DimmingScenario` on the emissivity ``table``
+    (an EmissivityTable or a path; default: see :func:`synthcorona.emissivity.resolve_table`) with
+    :meth:`ForecastInputs.with_scenario`; ``build=False`` leaves ``scenario`` None, for callers that
+    check the inputs first or build their own variants with :meth:`ForecastInputs.build_scenario`.
+    Every mistake raises :class:`ScenarioError` naming the file and the key. Keys:
+    ``docs/scenario_reference.md``.
     """
     root = load_toml(path_or_text, name=name)
     is_file = root.file not in ("<string>",) and pathlib.Path(root.file).is_file()
@@ -477,17 +494,9 @@ def read_forecast_file(path_or_text, *, name: str | None = None, build: bool = T
     mc, grid, target = _montecarlo(root, cme.mass, observation.false_alarm)
     output = _output(root)
     root.finish()
-    from ..dimming.scenario import DimmingScenario
-
-    scenario = None
-    if build:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", RuntimeWarning)
-            scenario = _wrap(root, None, DimmingScenario, star, corona, cme, flare, spec, observation,
-                             recovery=recovery, upflow_fraction=upflow)
-    raw = dict(root.data)
-    return ForecastInputs(scenario=scenario, star=star, corona=corona, cme=cme, flare=flare, observation=observation,
-                          instrument=spec, instruments=tuple(entries), montecarlo=mc, mass_grid=grid,
-                          target_probability=float(target), title=title,
-                          description=description, source=root.file, raw_text=text, raw=raw, recovery=recovery,
-                          upflow_fraction=upflow, output=output, flare_class=flare_class, star_name=star_name)
+    inputs = ForecastInputs(scenario=None, star=star, corona=corona, cme=cme, flare=flare, observation=observation,
+                            instrument=spec, instruments=tuple(entries), montecarlo=mc, mass_grid=grid,
+                            target_probability=float(target), title=title, description=description,
+                            source=root.file, raw_text=text, raw=dict(root.data), recovery=recovery,
+                            upflow_fraction=upflow, output=output, flare_class=flare_class, star_name=star_name)
+    return inputs.with_scenario(table=table) if build else inputs

@@ -155,7 +155,7 @@ def _blocks(ds, inputs, figures):
             b.append(("p", ds.attrs["mass_grid_note"] + "."))
     if figures:
         b.append(("h2", "Figures"))
-        for name, (path, png, caption) in figures.items():
+        for path, png, caption in figures.values():
             b.append(("figure", (path, png, caption)))
     b.append(("h2", "Assumptions and limitations"))
     stat_text = _LIKELIHOOD_TEXT if ds.attrs.get("statistic") == "likelihood" else _WINDOW_TEXT

@@ -192,29 +192,31 @@ class Section:
     def band(self, key: str, *, required: bool = False, default: Any = None) -> u.Quantity | None:
         """A spectral band: ``"0.1-2.4 keV"``, ``"165-180 Angstrom"`` or ``["0.1 keV", "2.4 keV"]`` -> Quantity pair.
 
-        Energies or wavelengths (any astropy unit of either); both ends positive and different.
+        Read and checked by :class:`~synthcorona.spectral.Band` (energies or wavelengths in any astropy
+        unit of either; both limits positive and finite, the lower limit first).
         """
+        from ..spectral import Band
+
         val = self._get(key, required, _MISSING)
         if val is _MISSING:
             return default
         example = 'e.g. "0.1-2.4 keV", "165-180 Angstrom" or ["0.1 keV", "2.4 keV"]'
+        pair = isinstance(val, list) and len(val) == 2 and all(isinstance(v, str) for v in val)
+        if not (isinstance(val, str) or pair):
+            raise self.error(key, f"cannot read it as a band; {example}")
         try:
-            if isinstance(val, str):
-                rng, unit = val.strip().split(None, 1)
-                lo, hi = rng.split("-")
-                q = u.Quantity([float(lo), float(hi)], u.Unit(unit))
-            elif isinstance(val, list) and len(val) == 2 and all(isinstance(v, str) for v in val):
-                a, b = u.Quantity(val[0]), u.Quantity(val[1])
-                q = u.Quantity([a.value, b.to_value(a.unit, equivalencies=u.spectral())], a.unit)
+            if pair:
+                lo, hi = u.Quantity(val[0]), u.Quantity(val[1])
+                band = Band(lo, hi.to(lo.unit, equivalencies=u.spectral()), key)
             else:
-                raise ValueError
-        except (ValueError, TypeError, u.UnitsError):
+                band = Band.parse(val, key)
+        except u.UnitsError:
+            raise self.error(key, f"band limits must be energies or wavelengths; {example}") from None
+        except InputError as exc:
+            raise self.error(key, str(exc)) from None
+        except (ValueError, TypeError):
             raise self.error(key, f"cannot read it as a band; {example}") from None
-        if q.unit.physical_type not in ("energy", "length"):
-            raise self.error(key, f"band limits must be energies or wavelengths; {example}")
-        if not (np.all(np.isfinite(q.value)) and np.all(q.value > 0) and q[0] != q[1]):
-            raise self.error(key, "band limits must be positive, finite and different")
-        return q
+        return band.quantity
 
     def boolean(self, key: str, *, required: bool = False, default: Any = None) -> bool | None:
         """true/false."""

@@ -1,8 +1,8 @@
 """Figures of an activity-cycle comparison (:func:`synthcorona.products.cycle.compare_cycle`) against phase.
 
-Each function takes the comparison Dataset and returns a matplotlib ``Figure`` (no pyplot state
-is kept); :func:`save_cycle_figures` writes every applicable figure as PNG. Needs matplotlib; use
-the Agg backend on machines without a display.
+Each function takes the comparison Dataset and returns a matplotlib ``Figure`` (object API only: no
+pyplot state, no backend selection); :func:`cycle_figures` gives every applicable figure and
+:func:`save_cycle_figures` writes them as PNG.
 """
 from __future__ import annotations
 
@@ -14,7 +14,7 @@ import xarray as xr
 from ..constants import PARSEC_CM
 
 __all__ = ["plot_cycle_fluxes", "plot_cycle_count_rates", "plot_cycle_hardness", "plot_cycle_conversion",
-           "plot_cycle_dimming", "save_cycle_figures"]
+           "plot_cycle_dimming", "cycle_figures", "save_cycle_figures"]
 
 
 def _figure(nrows=1, height=3.6):
@@ -144,23 +144,19 @@ def plot_cycle_dimming(ds: xr.Dataset):
     return fig
 
 
+def cycle_figures(ds: xr.Dataset) -> dict:
+    """``{PNG file name: Figure}`` of every figure that the Dataset has data for."""
+    jobs = [("cycle_fluxes.png", plot_cycle_fluxes, "flux"),
+            ("cycle_count_rates.png", plot_cycle_count_rates, "count_rate"),
+            ("cycle_hardness.png", plot_cycle_hardness, "hardness_ratio"),
+            ("cycle_conversion.png", plot_cycle_conversion, "rate_conversion"),
+            ("cycle_dimming.png", plot_cycle_dimming, "detection_probability")]
+    return {fname: fn(ds) for fname, fn, needs in jobs if needs in ds}
+
+
 def save_cycle_figures(ds: xr.Dataset, out_dir, dpi: int = 120) -> list[pathlib.Path]:
-    """Write every figure that the Dataset has data for as PNG into ``out_dir``; returns the paths."""
-    out = pathlib.Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
-    jobs = [("cycle_fluxes.png", plot_cycle_fluxes, "flux")]
-    if "count_rate" in ds:
-        jobs.append(("cycle_count_rates.png", plot_cycle_count_rates, "count_rate"))
-    if "hardness_ratio" in ds:
-        jobs.append(("cycle_hardness.png", plot_cycle_hardness, "hardness_ratio"))
-    if "rate_conversion" in ds:
-        jobs.append(("cycle_conversion.png", plot_cycle_conversion, "rate_conversion"))
-    if "detection_probability" in ds:
-        jobs.append(("cycle_dimming.png", plot_cycle_dimming, "detection_probability"))
-    paths = []
-    for fname, fn, _ in jobs:
-        fig = fn(ds)
-        p = out / fname
-        fig.savefig(p, dpi=dpi)
-        paths.append(p)
-    return paths
+    """Write :func:`cycle_figures` as PNG into ``out_dir`` (created if needed; see
+    :func:`synthcorona.io.writers.write_figures`); returns the paths."""
+    from ..io.writers import write_figures
+
+    return write_figures(cycle_figures(ds), out_dir, dpi=dpi)

@@ -18,7 +18,9 @@
 
 Everything is returned as one :class:`xarray.Dataset` with units and provenance in attrs (the
 emissivity table's CHIANTI version, content hash and substituted ions; the scenario file's text
-and SHA-256).
+and SHA-256); nothing is written to disk. :func:`forecast_tables` turns it into astropy tables,
+:mod:`synthcorona.plotting.forecast` into figures, :mod:`synthcorona.io.report` into the one-page
+report and :mod:`synthcorona.io.writers` into files.
 """
 from __future__ import annotations
 
@@ -31,9 +33,13 @@ import astropy.units as u
 import numpy as np
 import xarray as xr
 
-from ..errors import InputError
+from ..errors import BracketError, InputError
 
-__all__ = ["run_forecast", "table_provenance", "fwhm_duration"]
+__all__ = ["run_forecast", "forecast_tables", "table_provenance", "fwhm_duration", "check_realisations", "REALISATIONS_RANGE"]
+
+#: Monte Carlo realisations per probability that a forecast accepts (scenario files, the command line and
+#: :func:`run_forecast`); at least :func:`synthcorona.dimming.sizes.minimum_realisations` as well.
+REALISATIONS_RANGE = (100, 1_000_000)
 
 
 def fwhm_duration(onset_s: float, recovery_s: float) -> float:
@@ -47,15 +53,16 @@ def fwhm_duration(onset_s: float, recovery_s: float) -> float:
 
 
 def table_provenance(table=None) -> dict:
-    """Atomic-data provenance of the emissivity table (default: the embedded one) as flat attrs.
+    """Atomic-data provenance of an emissivity table (an EmissivityTable or a path; default: see
+    :func:`synthcorona.emissivity.resolve_table`) as flat attrs.
 
     Keys ``chianti_version``, ``table_content_hash``, ``table_file``, ``chianti_substituted_ions``
     (the ions whose level-resolved files come from older CHIANTI releases) and
     ``chianti_substituted_ion_count``.
     """
-    from ..emissivity import load_emissivity
+    from ..emissivity import resolve_table
 
-    t = table if table is not None else load_emissivity()
+    t = resolve_table(table)
     prov = t.provenance
     subst = str(prov.get("chianti_substituted_ions", ""))
     body = subst.split(":", 1)[1] if ":" in subst else subst
@@ -71,6 +78,25 @@ def table_provenance(table=None) -> dict:
     }
 
 
+def check_realisations(n: int, false_alarm: float | None = None, name: str = "realisations") -> int:
+    """``n`` as an int if it lies in :data:`REALISATIONS_RANGE` and, given ``false_alarm``, calibrates the
+    detection threshold (:func:`synthcorona.dimming.sizes.minimum_realisations`); else :class:`InputError`
+    naming ``name``."""
+    from ..dimming.sizes import MIN_EXCEEDANCES, minimum_realisations
+
+    lo, hi = REALISATIONS_RANGE
+    if not lo <= n <= hi:
+        raise InputError(f"{name}={n} is outside the valid range [{lo}, {hi}] (and at least {MIN_EXCEEDANCES} / "
+                         "false-alarm probability)", argument=name)
+    if false_alarm is not None:
+        need = minimum_realisations(false_alarm)
+        if n < need:
+            raise InputError(f"{name}={n} is too few to calibrate the detection threshold at false-alarm probability "
+                             f"{float(false_alarm):g}: give at least {need} ({MIN_EXCEEDANCES} / false-alarm "
+                             "probability)", argument=name)
+    return int(n)
+
+
 def _min_mass(scenario, band, target, bracket, statistic, n, seed):
     """Minimum detectable mass of one band: (mass g, error g, note)."""
     try:
@@ -78,63 +104,44 @@ def _min_mass(scenario, band, target, bracket, statistic, n, seed):
             warnings.simplefilter("ignore", RuntimeWarning)
             res = scenario.minimum_detectable_mass(target, bracket=bracket, band=band, statistic=statistic,
                                                    n_realisations=n, seed=seed)
+    except BracketError as exc:
+        lo, hi = (float(b.to_value(u.g)) for b in bracket)
+        p_lo, p_hi = exc.values
+        return math.nan, math.nan, (f"not bracketed in [{lo:.3g}, {hi:.3g}] g: P(detect) = {p_lo:.4g} at the lower "
+                                    f"end and {p_hi:.4g} at the upper end")
     except InputError as exc:
-        msg = " ".join(str(exc).split())
-        if "does not straddle" in msg:
-            lo, hi = (float(b.to_value(u.g)) for b in bracket)
-            p = msg.split("P(detect) = ", 1)[-1].split(" (false_alarm", 1)[0]
-            msg = f"not bracketed in [{lo:.3g}, {hi:.3g}] g: P(detect) = {p}"
-        return math.nan, math.nan, msg
+        return math.nan, math.nan, " ".join(str(exc).split())
     note = res.attrs.get("bracket_note", "")
     return float(res["mass"]), float(res["mass_error"]), "" if note == "bracket used as given" else note
 
 
-def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = None,
-                 show_realisations: int | None = None) -> xr.Dataset:
-    """All forecast products of a scenario (see the module docstring) as one Dataset.
+def _scenario(inputs, table):
+    """(scenario, table): the scenario of ``inputs`` built on ``table`` unless it already uses a table of the
+    same content, and the table to record (``table`` if given, else the scenario's)."""
+    from ..emissivity import resolve_table
 
-    Parameters
-    ----------
-    inputs : ForecastInputs
-        From :func:`synthcorona.io.forecast_file.read_forecast_file` (with its scenario built).
-    realisations, seed : int, optional
-        Override the file's ``[montecarlo]`` values (Monte Carlo realisations per probability;
-        integer seed of every random draw).
-    show_realisations : int, optional
-        Poisson light-curve realisations stored (with and without the CME); default the file's
-        ``[output] show_realisations``.
-
-    Returns
-    -------
-    xarray.Dataset
-        Over ``band``, ``mass`` (the mass grid, g), ``time`` (bin centres, s),
-        ``realisation`` and ``logT``; see the variables' ``long_name`` and ``units`` attrs.
-    """
     sc = inputs.scenario
-    if sc is None:
-        raise InputError("inputs.scenario is None: read the file with build=True")
-    mc = inputs.montecarlo
-    n = int(mc.realisations if realisations is None else realisations)
-    if n < 100:
-        raise InputError(f"realisations={n} is too few to calibrate a false-alarm threshold; valid range [100, 1e6]")
-    sd = int(mc.seed if seed is None else seed)
-    if sd < 0:
-        raise InputError(f"seed={sd} must be a non-negative integer")
-    nshow = int(inputs.output.get("show_realisations", 2) if show_realisations is None else show_realisations)
-    stat = mc.statistic
-    labels = list(sc.labels)
-    nb = len(labels)
+    if table is None:
+        sc = sc if sc is not None else inputs.with_scenario().scenario
+        return sc, sc.table
+    tab = resolve_table(table)
+    if sc is None or tab.content_hash != sc.table.content_hash:
+        sc = inputs.with_scenario(table=tab).scenario
+    return sc, tab
 
-    # depth and profile
-    d = sc.depth()
-    onset, tau = float(sc.onset), float(sc.recovery_time)
-    lc = sc.light_curve(seed=sd, n_realisations=nshow) if nshow > 0 else sc.light_curve()
-    lc0 = sc.light_curve(seed=sd, n_realisations=nshow, mass=0 * u.g) if nshow > 0 else None
+
+def _light_curve_products(sc, nshow: int, seed: int):
+    """Light curves with and without the CME, the net depth and the flare contamination of the post-event window.
+
+    Returns (light curve, light curve without the CME or None, variables over ``band``, post-event
+    window (start, stop) in s).
+    """
+    lc = sc.light_curve(seed=seed, n_realisations=nshow) if nshow > 0 else sc.light_curve()
+    lc0 = sc.light_curve(seed=seed, n_realisations=nshow, mass=0 * u.g) if nshow > 0 else None
     q = sc.quiescent_rate
     net = np.max((q[:, None] - lc["expected"].values) / q[:, None], axis=1)
-    win = sc._windows()[1]
     t_edges = sc.edges
-    w0, w1 = (float(x.to_value(u.s)) for x in win)
+    w0, w1 = (float(x.to_value(u.s)) for x in sc._windows()[1])
     lo_e, hi_e = np.clip(t_edges[:-1], w0, w1), np.clip(t_edges[1:], w0, w1)
     frac = (hi_e - lo_e) / np.diff(t_edges)                    # part of each bin inside the post-event window
     widths = np.diff(t_edges)
@@ -142,79 +149,114 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
     dim_counts = (lc["dimming_decrement"].values * widths * frac).sum(axis=1)
     with np.errstate(divide="ignore", invalid="ignore"):
         ratio = np.where(dim_counts > 0, flare_counts / dim_counts, np.inf if sc.flare is not None else 0.0)
+    band = ("band",)
+    data = {
+        "net_depth": (band, net, {"units": "1", "long_name": "largest fractional deficit of the expected light "
+                                                             "curve below quiescence, flare included"}),
+        "flare_peak_excess": (band, lc["flare_excess"].values.max(axis=1),
+                              {"units": "ct / s", "long_name": "largest bin-averaged flare excess"}),
+        "dimming_peak_decrement": (band, lc["dimming_decrement"].values.max(axis=1),
+                                   {"units": "ct / s", "long_name": "largest bin-averaged dimming decrement"}),
+        "flare_counts_post_window": (band, flare_counts,
+                                     {"units": "ct", "long_name": "flare excess counts in the post-event window"}),
+        "dimming_counts_post_window": (band, dim_counts,
+                                       {"units": "ct", "long_name": "dimming deficit counts in the post-event window"}),
+        "flare_to_dimming": (band, ratio, {"units": "1", "long_name": "flare excess / dimming deficit counts in "
+                                                                      "the post-event window"}),
+    }
+    return lc, lc0, data, (w0, w1)
 
-    # detection at the scenario's mass
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)
-        det = sc.detection_probability(n, statistic=stat, seed=sd)
 
-    # P(detect) vs mass (common random numbers: the same seed at every mass)
+def _mass_grid_products(sc, inputs, n, stat, seed) -> tuple[np.ndarray, dict, str]:
+    """P(detect) and depth at every mass of the grid (common random numbers: the same seed at every mass).
+
+    Returns (masses used [g], variables over ``mass`` and ``band``, note on masses left out).
+    """
     grid = np.asarray(inputs.mass_grid.to_value(u.g), dtype=float)
     mmax = float(sc.max_mass.to_value(u.g))
     dropped = grid[grid > mmax * (1 + 1e-12)]
     grid = grid[grid <= mmax * (1 + 1e-12)]
-    mass_note = (f"masses {', '.join(f'{m:.3g}' for m in dropped)} g exceed the largest removable mass {mmax:.4g} g "
-                 "and were left out") if dropped.size else "all masses of the grid used"
+    note = (f"masses {', '.join(f'{m:.3g}' for m in dropped)} g exceed the largest removable mass {mmax:.4g} g "
+            "and were left out") if dropped.size else "all masses of the grid used"
+    nb = len(sc.labels)
     pv = np.full((grid.size, nb), np.nan)
     pe = np.full_like(pv, np.nan)
     for k, m in enumerate(grid):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
-            r = sc.detection_probability(n, statistic=stat, seed=sd, mass=m * u.g)
+            r = sc.detection_probability(n, statistic=stat, seed=seed, mass=m * u.g)
         pv[k], pe[k] = r["probability"].values, r["probability_error"].values
     depth_grid = sc.depths_for(grid) if grid.size else np.zeros((0, nb))
-
-    # minimum detectable mass per band
-    lo_b = (grid.min() if grid.size else float(inputs.cme.mass.to_value(u.g)) or 1e15) / 100.0
-    hi_b = min((grid.max() if grid.size else lo_b * 1e6) * 100.0, mmax)
-    bracket = (lo_b * u.g, hi_b * u.g)
-    mm = np.full(nb, np.nan)
-    mme = np.full(nb, np.nan)
-    notes = [""] * nb
-    for b, lab in enumerate(labels):
-        mm[b], mme[b], notes[b] = _min_mass(sc, lab, inputs.target_probability, bracket, stat, n, sd)
-    best = sc.best_band()
-
-    # temperature responses used (ct s-1 cm3 at 1 pc, ISM absorption included)
-    band_dims = ("band",)
     data = {
-        "depth": (band_dims, d["depth"].values, {"units": "1", "long_name": "full fractional count-rate depth"}),
-        "depth_energy_flux": (band_dims, d["depth_energy_flux"].values,
-                              {"units": "1", "long_name": "full fractional energy-flux depth (band limits)"}),
-        "net_depth": (band_dims, net, {"units": "1", "long_name": "largest fractional deficit of the expected light "
-                                                                  "curve below quiescence, flare included"}),
-        "quiescent_rate": (band_dims, q, {"units": "ct / s"}),
-        "quiescent_energy_flux": (band_dims, d["quiescent_energy_flux"].values, {"units": "erg / (s cm2)"}),
-        "background": (band_dims, sc.background, {"units": "ct / s"}),
-        "rate_decrement": (band_dims, d["rate_decrement"].values,
-                           {"units": "ct / s", "long_name": "full dimming decrement of the count rate"}),
-        "flare_peak_excess": (band_dims, lc["flare_excess"].values.max(axis=1),
-                              {"units": "ct / s", "long_name": "largest bin-averaged flare excess"}),
-        "dimming_peak_decrement": (band_dims, lc["dimming_decrement"].values.max(axis=1),
-                                   {"units": "ct / s", "long_name": "largest bin-averaged dimming decrement"}),
-        "flare_counts_post_window": (band_dims, flare_counts,
-                                     {"units": "ct", "long_name": "flare excess counts in the post-event window"}),
-        "dimming_counts_post_window": (band_dims, dim_counts,
-                                       {"units": "ct", "long_name": "dimming deficit counts in the post-event window"}),
-        "flare_to_dimming": (band_dims, ratio, {"units": "1", "long_name": "flare excess / dimming deficit counts in "
-                                                                           "the post-event window"}),
-        "probability": (band_dims, det["probability"].values,
-                        {"units": "1", "long_name": "P(detect) at the scenario's CME mass"}),
-        "probability_error": (band_dims, det["probability_error"].values, {"units": "1", "long_name": "binomial error"}),
-        "threshold": (band_dims, det["threshold"].values,
-                      {"units": "sigma" if stat == "window" else "1", "long_name": "detection threshold"}),
         "probability_vs_mass": (("mass", "band"), pv, {"units": "1", "long_name": "P(detect) at each mass of the grid"}),
         "probability_vs_mass_error": (("mass", "band"), pe, {"units": "1"}),
         "depth_vs_mass": (("mass", "band"), depth_grid, {"units": "1"}),
-        "minimum_detectable_mass": (band_dims, mm, {"units": "g", "long_name": "CME mass with P(detect) = "
-                                                                               f"{inputs.target_probability:g}"}),
-        "minimum_detectable_mass_error": (band_dims, mme, {"units": "g", "long_name": "Monte Carlo error"}),
-        "minimum_detectable_mass_note": (band_dims, np.array(notes, dtype=object)),
-        "expected": (("band", "time"), lc["expected"].values, {"units": "ct / s", "long_name": "with CME and flare"}),
-        "expected_without_cme": (("band", "time"), lc["expected_without_cme"].values,
+    }
+    return grid, data, note
+
+
+def _minimum_mass_products(sc, inputs, grid, n, stat, seed) -> tuple[dict, tuple[float, float]]:
+    """Minimum detectable mass per band in a bracket of 1/100 of the smallest to 100 x the largest grid mass
+    (at most the largest removable mass). Returns (variables over ``band``, bracket in g)."""
+    mmax = float(sc.max_mass.to_value(u.g))
+    lo_b = (grid.min() if grid.size else float(inputs.cme.mass.to_value(u.g)) or 1e15) / 100.0
+    hi_b = min((grid.max() if grid.size else lo_b * 1e6) * 100.0, mmax)
+    bracket = (lo_b * u.g, hi_b * u.g)
+    nb = len(sc.labels)
+    mm = np.full(nb, np.nan)
+    mme = np.full(nb, np.nan)
+    notes = [""] * nb
+    for b, lab in enumerate(sc.labels):
+        mm[b], mme[b], notes[b] = _min_mass(sc, lab, inputs.target_probability, bracket, stat, n, seed)
+    band = ("band",)
+    data = {
+        "minimum_detectable_mass": (band, mm, {"units": "g", "long_name": "CME mass with P(detect) = "
+                                                                          f"{inputs.target_probability:g}"}),
+        "minimum_detectable_mass_error": (band, mme, {"units": "g", "long_name": "Monte Carlo error"}),
+        "minimum_detectable_mass_note": (band, np.array(notes, dtype=object)),
+    }
+    return data, (lo_b, hi_b)
+
+
+def _depth_variables(sc, d, net_depth) -> dict:
+    """Depths, quiescent rates and fluxes, background and decrement per band."""
+    band = ("band",)
+    return {
+        "depth": (band, d["depth"].values, {"units": "1", "long_name": "full fractional count-rate depth"}),
+        "depth_energy_flux": (band, d["depth_energy_flux"].values,
+                              {"units": "1", "long_name": "full fractional energy-flux depth (band limits)"}),
+        "net_depth": net_depth,
+        "quiescent_rate": (band, sc.quiescent_rate, {"units": "ct / s"}),
+        "quiescent_energy_flux": (band, d["quiescent_energy_flux"].values, {"units": "erg / (s cm2)"}),
+        "background": (band, sc.background, {"units": "ct / s"}),
+        "rate_decrement": (band, d["rate_decrement"].values,
+                           {"units": "ct / s", "long_name": "full dimming decrement of the count rate"}),
+    }
+
+
+def _detection_variables(det, stat) -> dict:
+    """P(detect) at the scenario's mass and the detection threshold per band."""
+    band = ("band",)
+    return {
+        "probability": (band, det["probability"].values,
+                        {"units": "1", "long_name": "P(detect) at the scenario's CME mass"}),
+        "probability_error": (band, det["probability_error"].values, {"units": "1", "long_name": "binomial error"}),
+        "threshold": (band, det["threshold"].values,
+                      {"units": "sigma" if stat == "window" else "1", "long_name": "detection threshold"}),
+    }
+
+
+def _curve_variables(sc, lc, inputs) -> dict:
+    """Expected light curves, temperature responses, quiescent EM and the time profile."""
+    curve = ("band", "time")
+    onset, tau = float(sc.onset), float(sc.recovery_time)
+    return {
+        "expected": (curve, lc["expected"].values, {"units": "ct / s", "long_name": "with CME and flare"}),
+        "expected_without_cme": (curve, lc["expected_without_cme"].values,
                                  {"units": "ct / s", "long_name": "quiescent + flare"}),
-        "flare_excess": (("band", "time"), lc["flare_excess"].values, {"units": "ct / s"}),
-        "dimming_decrement": (("band", "time"), lc["dimming_decrement"].values, {"units": "ct / s"}),
+        "flare_excess": (curve, lc["flare_excess"].values, {"units": "ct / s"}),
+        "dimming_decrement": (curve, lc["dimming_decrement"].values, {"units": "ct / s"}),
+        # temperature responses used (ct s-1 cm3 at 1 pc, ISM absorption included)
         "temperature_response": (("band", "logT"), sc.kernel,
                                  {"units": "ct cm3 / s", "long_name": "temperature response at 1 pc, ISM absorption "
                                                                       "included"}),
@@ -224,13 +266,12 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
         "recovery_time": ((), tau, {"units": "s", "long_name": "e-folding recovery time"}),
         "fwhm_duration": ((), fwhm_duration(onset, tau), {"units": "s", "long_name": "time above half depth"}),
         "cme_mass": ((), float(inputs.cme.mass.to_value(u.g)), {"units": "g"}),
-        "max_removable_mass": ((), mmax, {"units": "g"}),
+        "max_removable_mass": ((), float(sc.max_mass.to_value(u.g)), {"units": "g"}),
     }
-    if nshow > 0:
-        data["counts"] = (("realisation", "band", "time"), lc["counts"].values,
-                          {"units": "ct", "long_name": "Poisson realisations with CME (background included)"})
-        data["counts_without_cme"] = (("realisation", "band", "time"), lc0["counts"].values,
-                                      {"units": "ct", "long_name": "Poisson realisations without CME"})
+
+
+def _attrs(sc, table, inputs, n, seed, stat, bracket, mass_note, window) -> dict:
+    """Provenance: the scenario's settings, the scenario file's text and hash, the Monte Carlo and the table."""
     attrs = {k: (v if isinstance(v, (str, int, float)) else str(v)) for k, v in sc._attrs().items()}
     text = inputs.raw_text
     attrs.update({
@@ -243,27 +284,131 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
         "flare_energy_erg": float(inputs.flare.energy.to_value(u.erg)) if inputs.flare is not None else 0.0,
         "flare_class": inputs.flare_class or "",
         "n_realisations": n,
-        "seed": sd,
+        "seed": seed,
         "statistic": stat,
         "false_alarm": float(inputs.observation.false_alarm),
         "target_probability": float(inputs.target_probability),
-        "min_mass_bracket_g": f"{lo_b:.6g} {hi_b:.6g}",
+        "min_mass_bracket_g": f"{bracket[0]:.6g} {bracket[1]:.6g}",
         "mass_grid_note": mass_note,
-        "best_band": best,
+        "best_band": sc.best_band(),
         "bin_width_s": float(sc.bin_width),
         "exposure_s": float(inputs.observation.exposure.to_value(u.s)),
-        "post_event_window_s": f"{w0:.6g} {w1:.6g}",
+        "post_event_window_s": f"{window[0]:.6g} {window[1]:.6g}",
         "synthcorona_version": _version(),
         "created": datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds"),
         "method": attrs.get("method", "") + "; P(detect) by injection-recovery (synthcorona.dimming.statistics)",
     })
-    attrs.update(table_provenance())
-    coords = {"band": labels, "mass": ("mass", grid, {"units": "g"}),
+    attrs.update(table_provenance(table))
+    return attrs
+
+
+def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = None,
+                 show_realisations: int | None = None, table=None) -> xr.Dataset:
+    """All forecast products of a scenario (see the module docstring) as one Dataset.
+
+    Parameters
+    ----------
+    inputs : ForecastInputs
+        From :func:`synthcorona.io.forecast_file.read_forecast_file` (its scenario is built here if
+        it was read with ``build=False``).
+    realisations, seed : int, optional
+        Override the file's ``[montecarlo]`` values (Monte Carlo realisations per probability, see
+        :func:`check_realisations`; integer seed of every random draw).
+    show_realisations : int, optional
+        Poisson light-curve realisations stored (with and without the CME); default the file's
+        ``[output] show_realisations``.
+    table : EmissivityTable or path, optional
+        Emissivity table (default: the one the scenario was built with, else see
+        :func:`synthcorona.emissivity.resolve_table`); its provenance goes into the attrs.
+
+    Returns
+    -------
+    xarray.Dataset
+        Over ``band``, ``mass`` (the mass grid, g), ``time`` (bin centres, s),
+        ``realisation`` and ``logT``; see the variables' ``long_name`` and ``units`` attrs.
+    """
+    mc = inputs.montecarlo
+    n = check_realisations(int(mc.realisations if realisations is None else realisations),
+                           inputs.observation.false_alarm)
+    sd = int(mc.seed if seed is None else seed)
+    if sd < 0:
+        raise InputError(f"seed={sd} must be a non-negative integer", argument="seed")
+    nshow = int(inputs.output.get("show_realisations", 2) if show_realisations is None else show_realisations)
+    stat = mc.statistic
+    sc, tab = _scenario(inputs, table)
+
+    # depth and profile
+    d = sc.depth()
+    lc, lc0, lc_vars, window = _light_curve_products(sc, nshow, sd)
+    # detection at the scenario's mass
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        det = sc.detection_probability(n, statistic=stat, seed=sd)
+    # P(detect) vs mass, and the minimum detectable mass per band
+    grid, vs_mass, mass_note = _mass_grid_products(sc, inputs, n, stat, sd)
+    min_mass, bracket = _minimum_mass_products(sc, inputs, grid, n, stat, sd)
+
+    data = {**_depth_variables(sc, d, lc_vars.pop("net_depth")), **lc_vars, **_detection_variables(det, stat),
+            **vs_mass, **min_mass, **_curve_variables(sc, lc, inputs)}
+    if nshow > 0:
+        data["counts"] = (("realisation", "band", "time"), lc["counts"].values,
+                          {"units": "ct", "long_name": "Poisson realisations with CME (background included)"})
+        data["counts_without_cme"] = (("realisation", "band", "time"), lc0["counts"].values,
+                                      {"units": "ct", "long_name": "Poisson realisations without CME"})
+    coords = {"band": list(sc.labels), "mass": ("mass", grid, {"units": "g"}),
               "time": ("time", lc["time"].values, {"units": "s", "long_name": "bin centre from the start"}),
               "logT": ("logT", sc.logT, {"units": "log10(K)"}),
               "band_lo": ("band", sc.band_limits[:, 0], {"units": "keV"}),
               "band_hi": ("band", sc.band_limits[:, 1], {"units": "keV"})}
+    attrs = _attrs(sc, tab, inputs, n, sd, stat, bracket, mass_note, window)
     return xr.Dataset(data, coords=coords, attrs=attrs)
+
+
+def forecast_tables(ds: xr.Dataset):
+    """The forecast as two astropy ``QTable`` (with units): one row per band (depth, time profile, flare
+    contamination, P(detect), minimum detectable mass) and one row per (mass, band) of P(detect) vs mass.
+
+    Both carry the provenance (scenario file and hash, Monte Carlo, table) in ``meta``.
+    """
+    from astropy.table import QTable
+
+    bands = [str(b) for b in ds["band"].values]
+    nb = len(bands)
+    t = QTable()
+    t["band"] = bands
+    t["band_lo"] = ds["band_lo"].values * u.keV
+    t["band_hi"] = ds["band_hi"].values * u.keV
+    t["quiescent_rate"] = ds["quiescent_rate"].values * u.ct / u.s
+    t["background"] = ds["background"].values * u.ct / u.s
+    t["depth"] = ds["depth"].values
+    t["depth_energy_flux"] = ds["depth_energy_flux"].values
+    t["net_depth"] = ds["net_depth"].values
+    t["onset_time"] = np.full(nb, float(ds["onset_time"])) * u.s
+    t["recovery_time"] = np.full(nb, float(ds["recovery_time"])) * u.s
+    t["fwhm_duration"] = np.full(nb, float(ds["fwhm_duration"])) * u.s
+    t["flare_peak_excess"] = ds["flare_peak_excess"].values * u.ct / u.s
+    t["dimming_peak_decrement"] = ds["dimming_peak_decrement"].values * u.ct / u.s
+    t["flare_to_dimming"] = ds["flare_to_dimming"].values
+    t["probability"] = ds["probability"].values
+    t["probability_error"] = ds["probability_error"].values
+    t["minimum_detectable_mass"] = ds["minimum_detectable_mass"].values * u.g
+    t["minimum_detectable_mass_error"] = ds["minimum_detectable_mass_error"].values * u.g
+    t["note"] = [str(x) for x in ds["minimum_detectable_mass_note"].values]
+    keep = ("title", "scenario_file", "scenario_sha256", "cme_onset_time_s", "n_realisations", "seed", "statistic",
+            "false_alarm", "target_probability", "chianti_version", "table_content_hash", "synthcorona_version",
+            "created")
+    meta = {k: ds.attrs[k] for k in keep if k in ds.attrs}
+    meta["cme_mass_g"] = float(ds["cme_mass"])
+    t.meta.update(meta)
+    m = QTable()
+    nm = ds.sizes.get("mass", 0)
+    m["mass"] = np.repeat(ds["mass"].values, nb) * u.g
+    m["band"] = np.tile(bands, nm) if nm else np.array([], dtype=str)
+    m["depth"] = ds["depth_vs_mass"].values.ravel()
+    m["probability"] = ds["probability_vs_mass"].values.ravel()
+    m["probability_error"] = ds["probability_vs_mass_error"].values.ravel()
+    m.meta.update(meta)
+    return t, m
 
 
 def _version() -> str:

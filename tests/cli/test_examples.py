@@ -5,7 +5,7 @@ import sys
 
 import pytest
 
-EXAMPLES = sorted((pathlib.Path(__file__).parent.parent / "examples").glob("*.py"))
+EXAMPLES = sorted((pathlib.Path(__file__).parent.parent.parent / "examples").glob("*.py"))
 
 
 @pytest.mark.parametrize("script", EXAMPLES, ids=[p.name for p in EXAMPLES])

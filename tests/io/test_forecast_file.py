@@ -9,7 +9,7 @@ import pytest
 from synthcorona.errors import ScenarioError
 from synthcorona.io.forecast_file import flare_energy_from_class, read_forecast_file
 
-EXAMPLES = pathlib.Path(__file__).parent.parent / "examples" / "scenarios"
+EXAMPLES = pathlib.Path(__file__).parent.parent.parent / "examples" / "scenarios"
 
 BASE = """
 [scenario]
@@ -196,3 +196,19 @@ def test_mass_above_removable_names_cme_mass(tmp_path):
             read_forecast_file(p)
     msg = str(exc.value)
     assert "heavy.toml" in msg and "[cme] mass" in msg and "largest removable mass" in msg
+
+
+def test_scenario_is_built_on_the_given_table(tmp_path, table):
+    import shutil
+
+    copy = tmp_path / "copy.nc"
+    shutil.copyfile(table.path, copy)
+    fi = _read(tmp_path, BASE)
+    assert fi.scenario is None
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        built = fi.with_scenario(table=copy)
+        direct = read_forecast_file(tmp_path / "scen.toml", table=copy)
+    assert built.scenario.table.path == copy.resolve() and direct.scenario.table.path == copy.resolve()
+    assert fi.scenario is None                                    # the inputs themselves are unchanged
+    np.testing.assert_array_equal(built.scenario.depth()["depth"].values, direct.scenario.depth()["depth"].values)

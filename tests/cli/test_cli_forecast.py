@@ -1,4 +1,4 @@
-"""``synthcorona forecast`` and ``synthcorona spectrum`` on the example scenarios, against the Python API."""
+"""``synthcorona forecast`` on the example scenarios, against the Python API."""
 import pathlib
 import warnings
 
@@ -8,10 +8,10 @@ import pytest
 import xarray as xr
 from astropy.table import QTable
 
-import synthcorona.io.forecast_file as scenario_file
+import synthcorona.products.forecast as forecast_product
 from synthcorona.cli import main
 
-EXAMPLES = pathlib.Path(__file__).parent.parent / "examples" / "scenarios"
+EXAMPLES = pathlib.Path(__file__).parent.parent.parent / "examples" / "scenarios"
 SCENARIOS = ["young_star_softx", "m_dwarf_flare_euv", "sun_as_a_star_euv"]
 SEED = 7
 N_REAL = 1000   # the fewest realisations that calibrate a 1 % false-alarm threshold (10 null exceedances)
@@ -23,14 +23,14 @@ def run(request, tmp_path_factory):
     name = request.param
     out = tmp_path_factory.mktemp(name)
     built = {}
-    real_reader = scenario_file.read_forecast_file
+    real_run = forecast_product.run_forecast
 
-    def capture(*a, **k):
-        built["inputs"] = real_reader(*a, **k)
-        return built["inputs"]
+    def capture(inputs, **k):
+        built["inputs"] = inputs
+        return real_run(inputs, **k)
 
     mp = pytest.MonkeyPatch()
-    mp.setattr(scenario_file, "read_forecast_file", capture)
+    mp.setattr(forecast_product, "run_forecast", capture)
     extra = ["--report", "both"] if name == "young_star_softx" else ["--no-figures", "--report", "md"]
     try:
         with warnings.catch_warnings():
@@ -119,34 +119,10 @@ def test_report_and_figures(run, capsys):
     assert "http://" not in html and "https://" not in html   # self-contained
 
 
-@pytest.mark.parametrize("name", SCENARIOS)
-def test_spectrum_equals_the_api(name, tmp_path, capsys):
-    from synthcorona import band_flux
-    from synthcorona.cli.spectrum import emission_density
-
-    rc = main(["spectrum", str(EXAMPLES / f"{name}.toml"), "--out", str(tmp_path), "--no-figures"])
-    assert rc == 0
-    fi = scenario_file.read_forecast_file(EXAMPLES / f"{name}.toml", build=False)
-    n_e, _ = emission_density(fi)
-    fl = QTable.read(tmp_path / "band_fluxes.ecsv")
-    b = fi.output["flux_bands"][0]
-    f = band_flux(fi.corona.dem, band=b, distance=fi.star.distance, abundances=fi.corona.abundances, density=n_e)
-    assert fl["flux"][0].to_value(u.erg / u.s / u.cm ** 2) == pytest.approx(f.to_value(u.erg / u.s / u.cm ** 2),
-                                                                               rel=1e-12)
-    cr = QTable.read(tmp_path / "count_rates.ecsv")
-    e = fi.instruments[0]
-    r = e.instrument.count_rate(fi.corona.dem, distance=fi.star.distance, nh=fi.star.nh, band=e.bands[0],
-                                abundances=fi.corona.abundances, density=n_e)
-    assert cr["count_rate"][0].to_value(u.ct / u.s) == pytest.approx(float(r.to_value(u.ct / u.s)), rel=1e-12)
-    assert (tmp_path / "spectrum.nc").stat().st_size > 1000
-    assert "ct/s" in capsys.readouterr().out
-
-
 @pytest.mark.parametrize("argv, text", [
     (["forecast", "nowhere.toml"], "nowhere.toml"),
     (["forecast", "BAD", "--realisations", "10"], "--realisations"),
     (["forecast", "BAD"], "[cme] mass"),
-    (["spectrum", "BAD"], "[cme] mass"),
     (["forecast", "UNKNOWN"], "[star] colour"),
 ])
 def test_bad_input_exits_2_with_one_line(argv, text, tmp_path, capsys):
@@ -160,3 +136,18 @@ def test_bad_input_exits_2_with_one_line(argv, text, tmp_path, capsys):
     assert rc == 2
     err = capsys.readouterr().err.strip()
     assert text in err and "\n" not in err and "Traceback" not in err
+
+
+def test_realisations_override_is_checked_before_any_computation(tmp_path, capsys, monkeypatch):
+    from synthcorona.io.forecast_file import ForecastInputs
+
+    def no_scenario(*a, **k):
+        raise AssertionError("the scenario was built before --realisations was checked")
+
+    monkeypatch.setattr(ForecastInputs, "with_scenario", no_scenario)
+    # young_star_softx has false_alarm = 0.01: 10 expected false alarms need 1000 realisations
+    rc = main(["forecast", str(EXAMPLES / "young_star_softx.toml"), "--realisations", "999", "--out",
+               str(tmp_path / "o")])
+    err = capsys.readouterr().err.strip()
+    assert rc == 2 and "--realisations=999" in err and "1000" in err and "Traceback" not in err
+    assert not (tmp_path / "o").exists()

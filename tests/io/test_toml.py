@@ -85,3 +85,31 @@ def test_toml_syntax_error_names_file(tmp_path):
         load_toml(p)
     with pytest.raises(ScenarioError, match="missing.toml: file not found"):
         load_toml(tmp_path / "missing.toml")
+
+
+@pytest.mark.parametrize("value, expected", [
+    ('"0.1-2.4 keV"', [0.1, 2.4] * u.keV),
+    ('"165-180 Angstrom"', [165.0, 180.0] * u.AA),
+    ('"0.1 to 2.4 keV"', [0.1, 2.4] * u.keV),
+    ('["16.5 nm", "180 Angstrom"]', [16.5, 18.0] * u.nm),
+])
+def test_bands_are_read_with_their_unit(value, expected):
+    q = load_toml(f"b = {value}\n", name="t.toml").band("b")
+    assert q.unit == expected.unit
+    np.testing.assert_allclose(q.value, expected.value, rtol=1e-12)
+
+
+@pytest.mark.parametrize("value, phrase", [
+    ('"2.4-0.1 keV"', "is not below the upper limit"),
+    ('"0.1-2.4"', "energies or wavelengths"),        # no unit
+    ('"soft band"', "cannot read a band"),
+    ('"1-2 kg"', "energies or wavelengths"),
+    ('["1 kg", "2 kg"]', "energies or wavelengths"),
+    ("3", "cannot read it as a band"),
+    ('["0.1 keV"]', "cannot read it as a band"),
+])
+def test_bad_bands_are_named(value, phrase):
+    with pytest.raises(ScenarioError) as exc:
+        load_toml(f"[r]\nb = {value}\n", name="t.toml").section("r").band("b")
+    msg = str(exc.value)
+    assert msg.startswith("t.toml: [r] b = ") and phrase in msg, msg

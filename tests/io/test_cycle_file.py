@@ -1,0 +1,57 @@
+"""Activity-cycle files (synthcorona.io.cycle_file): every key read with its unit, mistakes named by file and key."""
+import pathlib
+
+import astropy.units as u
+import numpy as np
+import pytest
+
+from synthcorona.dem import IsothermalDEM
+from synthcorona.errors import ScenarioError
+from synthcorona.io.cycle_file import read_cycle_file
+from synthcorona.products.cycle import cycle_tables
+
+DATA = pathlib.Path(__file__).parent.parent / "data"
+MINIMAL = (DATA / "minimal_cycle.toml").read_text()
+REFERENCE = pathlib.Path(__file__).parent.parent.parent / "examples" / "cycle" / "reference_cme.toml"
+
+
+def test_minimal_cycle_file_runs_without_instruments():
+    ds = read_cycle_file(MINIMAL, name="ok.toml").run()
+    assert ds["flux"].sel(band="0.1-2.4 keV").values[1] == pytest.approx(1e-12, rel=1e-6)
+    assert "count_rate" not in ds and ds["phase"].attrs["units"] == "1"
+    per, amp = cycle_tables(ds)
+    assert len(per) == 2 and len(amp) == 2
+
+
+def test_response_file_path_relative_to_cycle_file(tmp_path, monkeypatch):
+    from synthcorona.instruments import load_instrument, write_arf
+
+    e = np.geomspace(0.1, 10.0, 201)
+    write_arf(tmp_path / "flat.arf", e[:-1] * u.keV, e[1:] * u.keV, np.full(200, 10.0) * u.cm ** 2)
+    text = MINIMAL + '\n[report]\ninstruments = ["flat.arf"]\n'
+    (tmp_path / "files").mkdir()
+    f = tmp_path / "c.toml"
+    f.write_text(text)
+    monkeypatch.chdir(tmp_path / "files")          # the path is relative to the cycle file, not the cwd
+    ds = read_cycle_file(f).run()
+    ins = load_instrument(str(tmp_path / "flat.arf"))
+    dem = IsothermalDEM(2 * u.MK, 1e50 * u.cm ** -3)
+    assert ds["count_rate"].values[0, 0] == pytest.approx(ins.count_rate(dem, distance=5 * u.pc).value[0], rel=1e-12)
+
+
+@pytest.mark.parametrize("realisations, ok", [(999, False), (1000, True)])
+def test_dimming_realisations_need_ten_false_alarms(tmp_path, realisations, ok):
+    # the reference scenario has false_alarm = 0.01: 10 expected false alarms need 1000 realisations
+    text = f'reference_scenario = "{REFERENCE}"\n' + MINIMAL + f"[dimming]\nrealisations = {realisations}\n"
+    if ok:
+        inputs = read_cycle_file(text, name="c.toml")
+        assert inputs.n_realisations == realisations and inputs.minimum_realisations == 1000
+    else:
+        with pytest.raises(ScenarioError, match=r"c.toml: \[dimming\] realisations = 999: .*>= 1000"):
+            read_cycle_file(text, name="c.toml")
+
+
+def test_hardness_of_unreported_band_names_the_key():
+    text = MINIMAL + '[report]\ninstruments = ["sc-softx"]\nhardness = ["sc-softx:hard/sc-fe9"]\n'
+    with pytest.raises(ScenarioError, match=r"bad.toml: \[report\] hardness: .*'sc-fe9' is not among"):
+        read_cycle_file(text, name="bad.toml")
