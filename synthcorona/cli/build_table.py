@@ -1,8 +1,6 @@
 """``synthcorona build-table``: build an emissivity table from a CHIANTI copy."""
 from __future__ import annotations
 
-import numpy as np
-
 NAME = "build-table"
 HELP = "build an emissivity table from a CHIANTI copy"
 
@@ -37,6 +35,8 @@ def add_arguments(p) -> None:
 
 def run(args) -> int:
     """Build the table and print where it was written; returns 0."""
+    import numpy as np
+
     from ..atomic.builder import BuildSettings, build_table, default_energy_grid
 
     logT = np.round(np.arange(args.logT_min, args.logT_max + 1e-9, args.logT_step), 6)
