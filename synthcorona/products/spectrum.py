@@ -125,6 +125,8 @@ def scenario_spectrum(inputs, table=None) -> SpectrumProducts:
     table : EmissivityTable or path, optional
         Default: see :func:`synthcorona.emissivity.resolve_table`.
 
+    Notes
+    -----
     The emissivities are taken at :func:`emission_density` limited to the table's density range
     (:func:`table_density`).
     """
