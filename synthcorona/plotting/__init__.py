@@ -1,0 +1,1 @@
+"""Figures (object-oriented matplotlib only; no pyplot state)."""

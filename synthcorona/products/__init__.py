@@ -1,0 +1,1 @@
+"""Whole computations returning xarray Datasets and tables, writing no files: forecast, cycle comparison, spectrum."""
