@@ -6,8 +6,8 @@ r"""A complete CME-dimming forecast: star, corona, CME, flare, instrument and ob
 * its time profile (:mod:`synthcorona.dimming.profile`),
 * the associated flare, from the 0D loop model :class:`~synthcorona.dimming.flare.LoopFlareModel`
   folded through each band's temperature response,
-* Poisson realisations (:mod:`synthcorona.dimming.noise`) and detection statistics
-  (:mod:`synthcorona.dimming.statistics`).
+* Poisson realisations (:mod:`synthcorona.dimming.noise`) and detection probabilities
+  (:mod:`synthcorona.dimming.detection`).
 
 Expected source count rate of band :math:`b` in a bin:
 
@@ -56,12 +56,11 @@ from ..dem import DEM
 from ..emissivity import resolve_table
 from ..errors import InputError
 from ..validation import as_quantity, as_scalar, check_range
+from . import detection
 from . import mass_removal as mr
 from . import profile as prof
 from .flare import LoopFlareModel
 from .noise import poisson_counts
-from .statistics import detection_probability as _detection_probability
-from .statistics import minimum_detectable as _minimum_detectable
 
 __all__ = ["Star", "Corona", "CME", "Flare", "Observation", "DimmingScenario"]
 
@@ -562,7 +561,7 @@ class DimmingScenario:
 
     def detection_probability(self, n_realisations: int = 10_000, statistic: str = "window", seed=None,
                               band=None, mass=None) -> xr.Dataset:
-        """Detection probability per band (:func:`synthcorona.dimming.statistics.detection_probability`).
+        """Detection probability per band (:func:`synthcorona.dimming.detection.detection_probability`).
 
         The window statistic compares the pre-event interval [0, t0) with [t0 + onset,
         t0 + onset + recovery_time) (cut at the end of the light curve).
@@ -571,7 +570,7 @@ class DimmingScenario:
         idx = range(len(self.labels)) if band is None else [self._band_index(band)]
         out = []
         for b in idx:
-            ds = _detection_probability(lc["expected"].values[b] * u.ct / u.s,
+            ds = detection.detection_probability(lc["expected"].values[b] * u.ct / u.s,
                                         lc["expected_without_cme"].values[b] * u.ct / u.s,
                                         self.bin_width * u.s, false_alarm=self.observation.false_alarm,
                                         n_realisations=n_realisations, statistic=statistic,
@@ -593,7 +592,7 @@ class DimmingScenario:
                                 xtol: float = 1e-2) -> xr.Dataset:
         """CME mass at which P(detect) = ``target_probability`` in ``band`` (default :meth:`best_band`).
 
-        Uses :func:`synthcorona.dimming.statistics.minimum_detectable`. If the bracket's upper end
+        Uses :func:`synthcorona.dimming.detection.minimum_detectable`. If the bracket's upper end
         exceeds the largest mass the corona can supply it is lowered to that mass, and
         ``attrs["bracket_note"]`` says so.
         """
@@ -624,7 +623,7 @@ class DimmingScenario:
             m = float(mass.to_value(u.g))
             return (base - (q * m + qx) * p) * u.ct / u.s, base * u.ct / u.s
 
-        res = _minimum_detectable(fn, self.bin_width * u.s, bracket=(lo_g * u.g, hi_g * u.g),
+        res = detection.minimum_detectable(fn, self.bin_width * u.s, bracket=(lo_g * u.g, hi_g * u.g),
                                   target_probability=target_probability, false_alarm=self.observation.false_alarm,
                                   n_realisations=n_realisations, statistic=statistic,
                                   windows=self._windows() if statistic == "window" else None, seed=seed, xtol=xtol,

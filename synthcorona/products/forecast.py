@@ -255,7 +255,7 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
         "post_event_window_s": f"{w0:.6g} {w1:.6g}",
         "synthcorona_version": _version(),
         "created": datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds"),
-        "method": attrs.get("method", "") + "; P(detect) by injection-recovery (synthcorona.dimming.statistics)",
+        "method": attrs.get("method", "") + "; P(detect) by injection-recovery (synthcorona.dimming.detection)",
     })
     attrs.update(table_provenance())
     coords = {"band": labels, "mass": ("mass", grid, {"units": "g"}),
