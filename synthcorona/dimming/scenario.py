@@ -18,9 +18,9 @@ bin-averaged dimming profile and :math:`\bar F_b` the bin-averaged flare excess
 :math:`(1\,\mathrm{pc}/d)^2\,[EM(t) K_b(T(t)) - EM(0) K_b(T(0))]` (the pre-flare loop is part of
 the quiescent corona). :math:`K_b` is interpolated linearly in log T at the loop's coronal-average
 temperature (the loop is treated as isothermal at each time). The flare heating starts at the CME
-onset :math:`t_0` plus ``Flare.delay``. The loop's radiative loss Λ(T) is the embedded table's at the
-emissivity density of the scenario (one table preparation shared with the responses; Λ varies by
-≲ 10 % between 1e9 and 1e11 cm-3, see :mod:`synthcorona.dimming.flare`).
+onset :math:`t_0` plus ``Flare.delay``. The loop's radiative loss Λ(T) is that of the scenario's
+emissivity table at the emissivity density of the scenario (one table preparation shared with the
+responses; Λ varies by ≲ 10 % between 1e9 and 1e11 cm-3, see :mod:`synthcorona.dimming.flare_loss`).
 
 If the flare run stops early (its temperature leaves the radiative-loss table; see
 ``attrs["termination"]`` of :meth:`LoopFlareModel.run`) the excess after the stop is taken as
@@ -363,7 +363,7 @@ class DimmingScenario:
         abund = self.corona.abundances
 
         def table_loss_at_source_density(temperature):
-            return radiative_loss(temperature, abundances=abund, density=dens)
+            return radiative_loss(temperature, table=self.table, abundances=abund, density=dens)
 
         model = LoopFlareModel(fl.loop_half_length, fl.loop_cross_section, initial_temperature=fl.initial_temperature,
                                flare_energy=fl.energy, peak_time=(delay + 0.5 * dur) * u.s, duration=dur * u.s,
