@@ -130,9 +130,9 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
     onset, tau = float(sc.onset), float(sc.recovery_time)
     lc = sc.light_curve(seed=sd, n_realisations=nshow) if nshow > 0 else sc.light_curve()
     lc0 = sc.light_curve(seed=sd, n_realisations=nshow, mass=0 * u.g) if nshow > 0 else None
-    q = sc.quiescent_rate
+    q = sc.prepared.rates.quiescent_rate
     net = np.max((q[:, None] - lc["expected"].values) / q[:, None], axis=1)
-    win = sc._windows()[1]
+    win = sc.detection_windows()[1]
     t_edges = sc.edges
     w0, w1 = (float(x.to_value(u.s)) for x in win)
     lo_e, hi_e = np.clip(t_edges[:-1], w0, w1), np.clip(t_edges[1:], w0, w1)
@@ -185,7 +185,7 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
                                                                   "curve below quiescence, flare included"}),
         "quiescent_rate": (band_dims, q, {"units": "ct / s"}),
         "quiescent_energy_flux": (band_dims, d["quiescent_energy_flux"].values, {"units": "erg / (s cm2)"}),
-        "background": (band_dims, sc.background, {"units": "ct / s"}),
+        "background": (band_dims, sc.prepared.rates.background, {"units": "ct / s"}),
         "rate_decrement": (band_dims, d["rate_decrement"].values,
                            {"units": "ct / s", "long_name": "full dimming decrement of the count rate"}),
         "flare_peak_excess": (band_dims, lc["flare_excess"].values.max(axis=1),
@@ -215,10 +215,10 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
                                  {"units": "ct / s", "long_name": "quiescent + flare"}),
         "flare_excess": (("band", "time"), lc["flare_excess"].values, {"units": "ct / s"}),
         "dimming_decrement": (("band", "time"), lc["dimming_decrement"].values, {"units": "ct / s"}),
-        "temperature_response": (("band", "logT"), sc.kernel,
+        "temperature_response": (("band", "logT"), sc.prepared.bands.kernel,
                                  {"units": "ct cm3 / s", "long_name": "temperature response at 1 pc, ISM absorption "
                                                                       "included"}),
-        "dem_em_weights": (("logT",), sc.quiescent_weights,
+        "dem_em_weights": (("logT",), sc.prepared.source.quiescent_weights,
                            {"units": "cm-3", "long_name": "quiescent EM per table temperature node"}),
         "onset_time": ((), onset, {"units": "s", "long_name": "linear rise time of the dimming"}),
         "recovery_time": ((), tau, {"units": "s", "long_name": "e-folding recovery time"}),
@@ -231,7 +231,7 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
                           {"units": "ct", "long_name": "Poisson realisations with CME (background included)"})
         data["counts_without_cme"] = (("realisation", "band", "time"), lc0["counts"].values,
                                       {"units": "ct", "long_name": "Poisson realisations without CME"})
-    attrs = {k: (v if isinstance(v, (str, int, float)) else str(v)) for k, v in sc._attrs().items()}
+    attrs = {k: (v if isinstance(v, (str, int, float)) else str(v)) for k, v in sc.result_attrs().items()}
     text = inputs.raw_text
     attrs.update({
         "title": inputs.title,
@@ -261,8 +261,8 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
     coords = {"band": labels, "mass": ("mass", grid, {"units": "g"}),
               "time": ("time", lc["time"].values, {"units": "s", "long_name": "bin centre from the start"}),
               "logT": ("logT", sc.logT, {"units": "log10(K)"}),
-              "band_lo": ("band", sc.band_limits[:, 0], {"units": "keV"}),
-              "band_hi": ("band", sc.band_limits[:, 1], {"units": "keV"})}
+              "band_lo": ("band", sc.prepared.bands.band_limits[:, 0], {"units": "keV"}),
+              "band_hi": ("band", sc.prepared.bands.band_limits[:, 1], {"units": "keV"})}
     return xr.Dataset(data, coords=coords, attrs=attrs)
 
 

@@ -1,6 +1,15 @@
-"""Light curves and a flare loop shared by the dimming tests (tests/dimming/test_*.py).
+"""Invented stars, scenarios and light curves shared by the dimming tests (tests/dimming/test_*.py).
 
-flare_model_run() is cached: it runs once per test session (the tests do not change its result).
+The scenario builders without arguments are cached: each is built once per test session (the tests do
+not change scenarios).
+
+SUN_DEM: a full-disk quiet-Sun DEM approximated by one Gaussian in log T: peak near log T = 6.15,
+width 0.2 dex, total EM 5e49 cm-3 (from memory: quiet-Sun DEMs peak at log T 6.1-6.2 and the
+full-disk EM is of order 1e49-1e50 cm-3, e.g. the CHIANTI quiet-Sun DEM shape; not read from any file).
+
+STAR_DEM: an invented active K dwarf at 2 pc (hotter and ~1000x more emission measure than the Sun),
+observed with the generic EUV imagers: ~20-50 ct/s, enough counts for high-S/N fits and Monte Carlo
+tests.
 """
 import functools
 import math
@@ -8,6 +17,51 @@ import warnings
 
 import astropy.units as u
 import numpy as np
+
+from synthcorona.dem import GaussianDEM, MultiComponentDEM
+from synthcorona.dimming import CME, Corona, DimmingScenario, Flare, Observation, Star
+
+SUN_DEM = GaussianDEM(6.15, 0.2, 5e49 * u.cm ** -3)
+STAR_DEM = MultiComponentDEM([GaussianDEM(6.3, 0.15, 3e52 * u.cm ** -3), GaussianDEM(6.9, 0.15, 1e52 * u.cm ** -3)])
+BANDS = ["sc-fe9", "sc-fe12"]
+
+
+@functools.cache
+def sun_scenario():
+    """Sun-as-a-star at 1 AU, 1e15 g CME from 1.5 MK plasma at n_e = 1e9 cm-3, with a 1e31 erg flare."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return DimmingScenario(Star(1 * u.AU), Corona(SUN_DEM, density=1e9 * u.cm ** -3),
+                               CME(1e15 * u.g, source_temperature=1.5e6 * u.K),
+                               Flare(1e31 * u.erg), BANDS, Observation(12 * u.h, 60 * u.s, 2 * u.h))
+
+
+def star_scenario(flare=None, mass=1e18 * u.g, distance=2 * u.pc, **observation_kw):
+    """The K dwarf (nh = 1e17 cm-2, n_e = 1e9 cm-3, 2 MK source) observed 10 h in 60 s bins, onset at 2 h."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return DimmingScenario(Star(distance, nh=1e17 * u.cm ** -2), Corona(STAR_DEM, density=1e9 * u.cm ** -3),
+                               CME(mass, source_temperature=2e6 * u.K), flare, BANDS,
+                               Observation(10 * u.h, 60 * u.s, 2 * u.h, **observation_kw))
+
+
+@functools.cache
+def star_flare_scenario():
+    """The K dwarf with a 1e33 erg flare in a 5e9 cm loop of 1e19 cm2 cross-section."""
+    return star_scenario(Flare(1e33 * u.erg, loop_half_length=5e9 * u.cm, loop_cross_section=1e19 * u.cm ** 2))
+
+
+@functools.cache
+def default_star_scenario():
+    """The K dwarf with a 1e18 g CME, no flare (star_scenario's defaults)."""
+    return star_scenario()
+
+
+@functools.cache
+def star_1e17_scenario():
+    """The K dwarf with a 1e17 g CME, no flare."""
+    return star_scenario(mass=1e17 * u.g)
+
 
 # ----------------------------------------------------------------------------- light curves of the statistics tests
 CTS = u.ct / u.s
