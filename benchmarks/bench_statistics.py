@@ -72,7 +72,7 @@ def loop_likelihood(mu_with, mu_without, n, rng):
             a0 = c.sum() / B.sum()
             c_null = 2 * np.sum(a0 * B - special.xlogy(c, a0 * B))
 
-            def cash(p):
+            def cash(p, c=c):
                 m = p[0] * B - p[1] * D
                 if np.any(m <= 0):
                     return 1e300, np.zeros(2)
@@ -92,7 +92,8 @@ def main():
     ap.add_argument("--loop-n", type=int, default=300, help="realisations timed in the Python-loop baselines")
     args = ap.parse_args()
     from synthcorona.dimming import noise
-    from synthcorona.dimming.statistics import _lr_fit, detection_probability
+    from synthcorona.dimming.detection import detection_probability
+    from synthcorona.dimming.statistics import fit_likelihood_ratio
 
     with_, without = light_curves()
     win = ((0 * u.s, 95 * u.s), (400 * u.s, 1000 * u.s))
@@ -137,8 +138,8 @@ def main():
           f"realisation -> {t_ll_full:.1f} s for 2 x {n}; vectorised speed-up {t_ll_full / t_lik:.0f}x")
     B, D = without, without - with_
     counts = np.random.default_rng(1).poisson(with_, size=(m, with_.size)).astype(float)
-    t_k1, _ = best_of(lambda: [_lr_fit(counts[i:i + 1], B, D, True) for i in range(m)], n=1)
-    t_kv, _ = best_of(lambda: _lr_fit(counts, B, D, True))
+    t_k1, _ = best_of(lambda: [fit_likelihood_ratio(counts[i:i + 1], B, D, True) for i in range(m)], n=1)
+    t_kv, _ = best_of(lambda: fit_likelihood_ratio(counts, B, D, True))
     print(f"same Newton kernel, one realisation per call vs all {m} at once: {t_k1 / m * 1e3:.3f} vs "
           f"{t_kv / m * 1e3:.4f} ms per realisation ({t_k1 / t_kv:.0f}x)")
 

@@ -556,7 +556,7 @@ class PDetectWindow:
     def ours(quick, out):
         import astropy.units as u
 
-        from synthcorona.dimming.statistics import detection_probability
+        from synthcorona.dimming.detection import detection_probability
 
         w, wo = _toy_light_curves()
         win = tuple((a * u.s, b * u.s) for a, b in PDetectWindow.WIN)
@@ -600,7 +600,7 @@ class PDetectLikelihood:
     def ours(quick, out):
         import astropy.units as u
 
-        from synthcorona.dimming.statistics import detection_probability
+        from synthcorona.dimming.detection import detection_probability
 
         w, wo = _toy_light_curves()
         n = 1000 if quick else 10_000
@@ -775,7 +775,7 @@ class MCMemory:
     def ours(quick, out):
         import astropy.units as u
 
-        from synthcorona.dimming.statistics import detection_probability
+        from synthcorona.dimming.detection import detection_probability
 
         w, wo = _toy_light_curves()
         n = 100_000 if quick else 1_000_000

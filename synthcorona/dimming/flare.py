@@ -53,39 +53,30 @@ from memory); :math:`n_{eq}` keeps the classical flux.
 
 Radiative losses
 ----------------
-:math:`\Lambda(T)` [erg cm\ :sup:`3` s\ :sup:`-1`, per :math:`n_e n_H`] is by default the
-embedded CHIANTI table (:func:`synthcorona.synthesis.radiative_loss`) evaluated once, on the
-table's temperature nodes, at the initial density (clipped to the table's density range) and
-interpolated linearly in log Λ–log T (exactly what ``radiative_loss`` does between nodes).
-Λ depends only weakly on density (≲ 10 % between 10\ :sup:`9` and 10\ :sup:`11` cm\ :sup:`-3`
-for the embedded table at coronal temperatures), so it is not re-evaluated as the density
-changes during a run. The model cannot
-leave the table's temperature range (10\ :sup:`4.5`–10\ :sup:`8.5` K): a run that reaches
-either end stops there with a warning and ``attrs["termination"]`` says so.
-``radiative_loss="analytic"`` selects the piecewise power law of KPC08 (their eq. 3),
-valid over 10\ :sup:`4`–10\ :sup:`9` K (coefficients from memory, checked by their continuity to
-0.1 % at every break point); a callable ``f(T: Quantity) -> Quantity`` is sampled
-once on a 0.01-dex grid over 10\ :sup:`4.5`–10\ :sup:`8.5` K.
+:math:`\Lambda(T)` (:mod:`synthcorona.dimming.flare_loss`) is by default the emissivity table's at
+the initial density, not re-evaluated as the density changes. A run whose temperature reaches
+either end of the Λ range (10\ :sup:`4.5`–10\ :sup:`8.5` K for the embedded table) stops there
+with a warning, and ``attrs["termination"]`` says so.
 
 Heating
 -------
 :math:`Q(t) = Q_{bg} + E_{flare}\, g(t) / V` [erg cm\ :sup:`-3` s\ :sup:`-1`] with
 :math:`\int_0^\infty g\,dt = 1`: ``profile="triangular"`` (base width ``duration``, apex at
-``peak_time``) or ``"gaussian"`` (FWHM ``duration``). A profile that would begin before
-:math:`t = 0` is truncated there and renormalised, so the whole ``flare_energy`` is always
+``peak_time``) or ``"gaussian"`` (FWHM ``duration``), see
+:class:`~synthcorona.dimming.flare_energy.HeatingProfile`; the whole ``flare_energy`` is
 deposited at :math:`t \ge 0`. The background :math:`Q_{bg}` is, by default, the heating of
 the static equilibrium of *these* equations (:math:`dp/dt = dn/dt = 0`) at the given initial
 temperature, density or pressure: :math:`c_{1,eq} n^2 \Lambda L = -F_0` fixes the missing
 variable and :math:`Q_{bg} = (1 + c_{1,eq}) n^2 \Lambda(T)`. This is the 0D analogue of the
 scaling laws of Rosner, Tucker & Vaiana (1978, ApJ 220, 643), :math:`T_{max} \approx
 1400\,(pL)^{1/3}`; the equilibrium apex temperature lies 11–20 % above that law for
-the KPC08 loss function and pL = 1e9–2e11 dyn cm-1 (see ``tests/test_flare.py``). No conversion from a GOES class to an
-energy is offered: flare energies vs. class have a scatter of an order of magnitude
-(e.g. Emslie et al. 2012, ApJ 759, 71), so the energy is an explicit input.
+the KPC08 loss function and pL = 1e9–2e11 dyn cm-1 (see ``tests/dimming/test_flare.py``). The
+flare energy is an explicit input: flare energies vs. soft-X-ray class have a scatter of an
+order of magnitude (e.g. Emslie et al. 2012, ApJ 759, 71); the rough class -> energy rule used
+for scenario files is :func:`~synthcorona.dimming.flare_energy.flare_energy_from_class`.
 
-Cooling times (Cargill 1994, ApJ 422, 381; Cargill, Mariska & Antiochos 1995, ApJ 439, 1034):
-:math:`\tau_c = 3 n k_B L^2 / (\kappa_0 T^{5/2})` and :math:`\tau_r = 3 k_B T / (n \Lambda(T))`
-(thermal energy :math:`3 n k_B T` over the conductive or radiative loss rate).
+Cooling times are in :mod:`synthcorona.dimming.flare_cooling`, the energy bookkeeping of a run in
+:mod:`synthcorona.dimming.flare_energy`.
 
 Limits used by the tests
 ------------------------
@@ -94,43 +85,30 @@ dominated, :math:`d\ln T/dt = -(6/35)\, c_2^{-5/2} / (c_3 \tau_c)` (T e-folds in
 :math:`2.69\,\tau_c`); radiation dominated, :math:`d\ln T/dt = -[1 + c_1(1 - 3c_2/5c_3)]/\tau_r`
 and :math:`d\ln T / d\ln n = (1 + 0.1 c_1)/(0.9 c_1) \approx 1.96` for :math:`c_1 = 0.6`,
 the :math:`T \propto n^2` of the draining phase that CBK12 built :math:`c_{1,rad}` to reproduce.
-
-Energy bookkeeping
-------------------
-The system is the coronal part of the loop. Energy enters as heating :math:`Q V`; it leaves
-as coronal radiation :math:`n^2 \Lambda V` and as the net flux through the two coronal
-bases, conduction plus enthalpy, :math:`-(F_0 + \tfrac52 p v_0)\, 2A = c_1 n^2 \Lambda V`,
-which the thin TR radiates. The thermal energy is :math:`\tfrac32 p V`.
-:func:`energy_budget` integrates these from a run's output.
 """
 from __future__ import annotations
 
 import math
 import warnings
-from typing import Callable, NamedTuple
 
 import astropy.constants as const
 import astropy.units as u
 import numpy as np
 import xarray as xr
-from scipy.integrate import solve_ivp, trapezoid
+from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
-from scipy.special import erf
 
 from ..constants import K_B_CGS as K_B
 from ..constants import M_E_G as M_E
 from ..constants import M_P_G as M_P
 from ..errors import InputError
-from ..validation import as_quantity, check_finite, check_positive, check_range
+from ..validation import as_quantity, check_positive, check_range
+from .flare_cooling import KAPPA0, CoolingTimes, conductive_cooling_time, finite_quantity, radiative_cooling_time
+from .flare_energy import HeatingProfile
+from .flare_loss import LAMBDA_UNIT, is_table_loss, loss_density, resolve_loss
 
-__all__ = [
-    "LoopFlareModel", "conductive_cooling_time", "radiative_cooling_time", "energy_budget",
-    "flare_em_temperature", "analytic_radiative_loss", "CoolingTimes", "EnergyBudget", "FlareEMTemperature",
-    "KAPPA0", "C1_EQUILIBRIUM", "C1_RADIATIVE", "C2", "C3",
-]
+__all__ = ["LoopFlareModel", "C1_EQUILIBRIUM", "C1_RADIATIVE", "C2", "C3", "SOLAR_GRAVITY"]
 
-#: Spitzer parallel conductivity coefficient [erg s-1 cm-1 K-7/2] (KPC08).
-KAPPA0 = 1.0e-6
 #: Ratio of average to apex temperature (CBK12).
 C2 = 0.9
 #: Ratio of coronal-base to apex temperature (CBK12).
@@ -143,215 +121,7 @@ C1_RADIATIVE = 0.6
 SOLAR_GRAVITY = float((const.G * const.M_sun / const.R_sun ** 2).cgs.value)
 
 _HEAT_UNIT = u.erg / u.cm ** 3 / u.s
-_LAMBDA_UNIT = u.erg * u.cm ** 3 / u.s
-_FWHM_PER_SIGMA = 2.0 * math.sqrt(2.0 * math.log(2.0))
 
-# KPC08 eq. 3: Λ = chi T^alpha on [10^lo, 10^hi) (log10 chi given); continuous to 0.1 %.
-_KPC08_LOG_T = np.array([4.0, 4.97, 5.67, 6.18, 6.55, 6.90, 7.63, 9.0])
-_KPC08_CHI = np.array([1.09e-31, 8.87e-17, 1.90e-22, 3.53e-13, 3.46e-25, 5.49e-16, 1.96e-27])
-_KPC08_ALPHA = np.array([2.0, -1.0, 0.0, -1.5, 1.0 / 3.0, -1.0, 0.5])
-
-
-# ----------------------------------------------------------------------------- radiative loss
-
-class _Loss:
-    """Λ(T) on plain floats [K → erg cm3 s-1], with its valid temperature range and a label."""
-
-    def __init__(self, log_t: np.ndarray, log_lam: np.ndarray, label: str):
-        self.log_t = np.asarray(log_t, dtype=float)
-        self.log_lam = np.asarray(log_lam, dtype=float)
-        self.t_min = float(10 ** self.log_t[0])
-        self.t_max = float(10 ** self.log_t[-1])
-        self.label = label
-
-    def __call__(self, temperature):
-        return 10.0 ** np.interp(np.log10(temperature), self.log_t, self.log_lam)
-
-
-class _AnalyticLoss(_Loss):
-    """KPC08 piecewise power law, evaluated exactly on each segment."""
-
-    def __init__(self):
-        self.t_min = float(10 ** _KPC08_LOG_T[0])
-        self.t_max = float(10 ** _KPC08_LOG_T[-1])
-        self.label = "analytic piecewise power law (Klimchuk, Patsourakos & Cargill 2008, ApJ 682, 1351, eq. 3)"
-
-    def __call__(self, temperature):
-        t = np.clip(temperature, self.t_min, self.t_max)
-        k = np.clip(np.searchsorted(_KPC08_LOG_T, np.log10(t), side="right") - 1, 0, _KPC08_CHI.size - 1)
-        return _KPC08_CHI[k] * t ** _KPC08_ALPHA[k]
-
-
-def analytic_radiative_loss(temperature) -> u.Quantity:
-    r"""Piecewise power-law radiative loss function of Klimchuk, Patsourakos & Cargill (2008, ApJ 682, 1351, eq. 3).
-
-    :math:`\Lambda = 1.09\times10^{-31} T^2` (T ≤ 10^4.97 K), :math:`8.87\times10^{-17} T^{-1}`
-    (≤ 10^5.67), :math:`1.90\times10^{-22}` (≤ 10^6.18), :math:`3.53\times10^{-13} T^{-3/2}`
-    (≤ 10^6.55), :math:`3.46\times10^{-25} T^{1/3}` (≤ 10^6.90), :math:`5.49\times10^{-16} T^{-1}`
-    (≤ 10^7.63), :math:`1.96\times10^{-27} T^{1/2}` above; erg cm3 s-1, for 10^4–10^9 K.
-    """
-    t = as_quantity("temperature", temperature, u.K)
-    check_range("temperature", t.value, lo=1e4, hi=1e9, unit_label="K")
-    return u.Quantity(_AnalyticLoss()(t.value), _LAMBDA_UNIT)
-
-
-def _table_loss(density_cm3: float, abundances) -> _Loss:
-    from ..emissivity import load_emissivity
-    from ..synthesis import radiative_loss
-
-    table = load_emissivity()
-    lo, hi = 10 ** table.log_density[0], 10 ** table.log_density[-1]
-    n_eval = float(np.clip(density_cm3, lo, hi))
-    lam = radiative_loss(10 ** table.logT * u.K, table=table, abundances=abundances,
-                         density=n_eval * u.cm ** -3).to_value(_LAMBDA_UNIT)
-    label = (f"embedded CHIANTI table ({table.provenance.get('chianti_version', '?')}), abundances "
-             f"{abundances!r}, evaluated at n_e = {n_eval:.4g} cm-3, log-log interpolation in T")
-    return _Loss(table.logT, np.log10(np.maximum(lam, 1e-300)), label)
-
-
-def _callable_loss(func: Callable) -> _Loss:
-    log_t = np.round(np.arange(4.5, 8.5 + 1e-9, 0.01), 6)
-    try:
-        lam = func(10 ** log_t * u.K)
-        lam = as_quantity("radiative_loss(T)", lam, _LAMBDA_UNIT).value
-    except InputError:
-        raise
-    except u.UnitsError:
-        raise
-    except Exception as exc:  # the user's function failed: say where
-        raise InputError(f"radiative_loss: calling the function on T = 10^4.5-10^8.5 K failed: {exc!r}") from exc
-    lam = np.broadcast_to(np.asarray(lam, dtype=float), log_t.shape)
-    if not np.all(np.isfinite(lam)) or np.any(lam <= 0):
-        raise InputError("radiative_loss: the function must return finite values > 0 erg cm3 s-1 on 10^4.5-10^8.5 K")
-    name = getattr(func, "__name__", type(func).__name__)
-    return _Loss(log_t, np.log10(lam), f"user function {name} sampled every 0.01 dex on 10^4.5-10^8.5 K")
-
-
-def _resolve_loss(spec, density_cm3: float, abundances) -> _Loss:
-    if spec is None or (isinstance(spec, str) and spec == "table"):
-        return _table_loss(density_cm3, abundances)
-    if isinstance(spec, str) and spec == "analytic":
-        return _AnalyticLoss()
-    if callable(spec):
-        return _callable_loss(spec)
-    raise InputError(f"radiative_loss={spec!r}: give None or 'table' (embedded CHIANTI table), 'analytic' "
-                     "(KPC08 power law) or a function T [Quantity] -> Lambda [erg cm3 s-1]")
-
-
-# ----------------------------------------------------------------------------- cooling times
-
-class CoolingTimes(NamedTuple):
-    """Conductive and radiative cooling times [s] (Cargill 1994)."""
-
-    conductive: u.Quantity
-    radiative: u.Quantity
-
-
-def _scalar_or_array(name, value, unit):
-    q = as_quantity(name, value, unit)
-    check_finite(name, q)
-    return q
-
-
-def conductive_cooling_time(temperature, density, half_length) -> u.Quantity:
-    r"""Conductive cooling time :math:`\tau_c = 3 n k_B L^2 / (\kappa_0 T^{5/2})` [s].
-
-    Cargill (1994, ApJ 422, 381) and Cargill, Mariska & Antiochos (1995, ApJ 439, 1034):
-    the thermal energy :math:`3 n k_B T` divided by the conductive loss rate
-    :math:`\kappa_0 T^{7/2} / L^2`, with :math:`\kappa_0 = 10^{-6}` cgs; numerically
-    :math:`\approx 4.1\times10^{-10}\, n L^2 T^{-5/2}` s (the factor 3 as remembered from those
-    papers: thermal energy of electrons plus protons). Arguments broadcast.
-    """
-    t = _scalar_or_array("temperature", temperature, u.K)
-    n = _scalar_or_array("density", density, u.cm ** -3)
-    length = _scalar_or_array("half_length", half_length, u.cm)
-    check_positive("temperature", t.value, "K")
-    check_positive("density", n.value, "cm-3")
-    check_positive("half_length", length.value, "cm")
-    return u.Quantity(3.0 * n.value * K_B * length.value ** 2 / (KAPPA0 * t.value ** 2.5), u.s)
-
-
-def radiative_cooling_time(temperature, density, radiative_loss=None, abundances="coronal") -> u.Quantity:
-    r"""Radiative cooling time :math:`\tau_r = 3 k_B T / (n \Lambda(T))` [s].
-
-    Cargill (1994, ApJ 422, 381); Cargill, Mariska & Antiochos (1995, ApJ 439, 1034).
-    ``radiative_loss`` is Λ itself (a Quantity in erg cm3 s-1 broadcasting with ``temperature``),
-    a function T → Λ, ``"analytic"`` (KPC08 eq. 3) or None / ``"table"`` (the embedded CHIANTI
-    table at each given density, clipped to the table's density range).
-    """
-    t = _scalar_or_array("temperature", temperature, u.K)
-    n = _scalar_or_array("density", density, u.cm ** -3)
-    check_positive("temperature", t.value, "K")
-    check_positive("density", n.value, "cm-3")
-    if isinstance(radiative_loss, u.Quantity):
-        lam = as_quantity("radiative_loss", radiative_loss, _LAMBDA_UNIT).value
-        check_positive("radiative_loss", lam, "erg cm3 s-1")
-    elif isinstance(radiative_loss, str) and radiative_loss == "analytic":
-        lam = analytic_radiative_loss(t).value
-    elif callable(radiative_loss):
-        lam = as_quantity("radiative_loss(T)", radiative_loss(t), _LAMBDA_UNIT).value
-    elif radiative_loss is None or radiative_loss == "table":
-        from ..synthesis import radiative_loss as table_loss
-
-        tv, nv = np.broadcast_arrays(t.value, n.value)
-        lam = np.empty(tv.shape)
-        for dens in np.unique(nv):
-            sel = nv == dens
-            lam[sel] = table_loss(tv[sel] * u.K, abundances=abundances,
-                                  density=_loss_density(dens) * u.cm ** -3).to_value(_LAMBDA_UNIT)
-    else:
-        raise InputError(f"radiative_loss={radiative_loss!r}: give a Quantity (erg cm3 s-1), a function, "
-                         "'analytic', 'table' or None")
-    return u.Quantity(3.0 * K_B * t.value / (n.value * lam), u.s)
-
-
-def _loss_density(density_cm3: float) -> float:
-    """Density [cm-3] at which the embedded table's Λ is evaluated: ``density`` clipped to the table range."""
-    from ..emissivity import load_emissivity
-
-    table = load_emissivity()
-    return float(np.clip(density_cm3, 10 ** table.log_density[0], 10 ** table.log_density[-1]))
-
-
-# ----------------------------------------------------------------------------- heating profile
-
-class _Profile:
-    """Normalised flare heating profile g(t) [s-1] with ∫_0^∞ g dt = 1 and its cumulative integral."""
-
-    def __init__(self, kind: str, peak: float, duration: float):
-        self.kind, self.peak, self.duration = kind, peak, duration
-        if kind == "triangular":
-            self.half = 0.5 * duration
-            self.start, self.end = peak - self.half, peak + self.half
-        else:
-            self.sigma = duration / _FWHM_PER_SIGMA
-            self.start, self.end = peak - 6.0 * self.sigma, peak + 6.0 * self.sigma
-        self.norm = 1.0 - self._cum_raw(0.0)
-
-    def _cum_raw(self, t):
-        t = np.asarray(t, dtype=float)
-        if self.kind == "triangular":
-            h, p = self.half, self.peak
-            rise = (t - (p - h)) ** 2 / (2 * h * h)
-            fall = 1.0 - ((p + h) - t) ** 2 / (2 * h * h)
-            return np.where(t <= p - h, 0.0, np.where(t <= p, rise, np.where(t < p + h, fall, 1.0)))
-        return 0.5 * (1.0 + erf((t - self.peak) / (math.sqrt(2.0) * self.sigma)))
-
-    def rate(self, t):
-        t = np.asarray(t, dtype=float)
-        if self.kind == "triangular":
-            g = np.maximum(0.0, 1.0 - np.abs(t - self.peak) / self.half) / self.half
-        else:
-            g = np.exp(-0.5 * ((t - self.peak) / self.sigma) ** 2) / (self.sigma * math.sqrt(2 * math.pi))
-        return np.where(t >= 0, g / self.norm, 0.0)
-
-    def cumulative(self, t):
-        """∫_0^t g dt'."""
-        t = np.maximum(np.asarray(t, dtype=float), 0.0)
-        return (self._cum_raw(t) - self._cum_raw(0.0)) / self.norm
-
-
-# ----------------------------------------------------------------------------- the model
 
 class LoopFlareModel:
     r"""Coronal-average (0D) flare loop: T, n, p of a loop of half-length L under impulsive heating.
@@ -390,12 +160,15 @@ class LoopFlareModel:
         Steady heating rate. Default: the equilibrium value (one initial variable given).
     abundances : str or dict
         Abundances of the table Λ (ignored for "analytic" or a callable).
+    table : EmissivityTable or path, optional
+        Emissivity table of the table Λ (default: the embedded table, or ``$SYNTHCORONA_TABLE``;
+        see :func:`synthcorona.emissivity.resolve_table`; ignored for "analytic" or a callable).
     """
 
     def __init__(self, half_length, loop_cross_section, *, initial_temperature=None, initial_density=None,
                  initial_pressure=None, flare_energy=0.0 * u.erg, peak_time=None, duration=None,
                  profile: str = "triangular", radiative_loss=None, gravity: bool = False, surface_gravity=None,
-                 saturation: bool = False, background_heating=None, abundances="coronal"):
+                 saturation: bool = False, background_heating=None, abundances="coronal", table=None):
         self.half_length = self._positive_scalar("half_length", half_length, u.cm)
         self.loop_cross_section = self._positive_scalar("loop_cross_section", loop_cross_section, u.cm ** 2)
         self._L = self.half_length.value
@@ -408,8 +181,13 @@ class LoopFlareModel:
         else:
             self.surface_gravity = self._positive_scalar("surface_gravity", surface_gravity, u.cm / u.s ** 2)
         self._g = self.surface_gravity.value
+        self._set_heating(flare_energy, peak_time, duration, profile)
+        self._table = table  # of the table Λ, as given (resolved by flare_loss)
+        self._set_initial_state(initial_temperature, initial_density, initial_pressure, radiative_loss, abundances,
+                                background_heating)
 
-        # ---- flare heating
+    def _set_heating(self, flare_energy, peak_time, duration, profile):
+        """Flare heating: energy, profile and its time parameters (checked)."""
         e = as_quantity("flare_energy", flare_energy, u.erg)
         if np.ndim(e) != 0:
             raise InputError(f"flare_energy={flare_energy} must be a single value")
@@ -427,10 +205,12 @@ class LoopFlareModel:
             raise InputError(f"flare_energy={flare_energy} > 0 needs peak_time (>= 0 s) and duration (> 0 s)")
         self._profile = None
         if e.value > 0:
-            self._profile = _Profile(profile, self.peak_time.value, self.duration.value)
+            self._profile = HeatingProfile(profile, self.peak_time.value, self.duration.value)
         self._q_flare = e.value / self._V  # erg cm-3 (times g(t) [s-1])
 
-        # ---- initial state and radiative losses
+    def _set_initial_state(self, initial_temperature, initial_density, initial_pressure, radiative_loss, abundances,
+                           background_heating):
+        """Initial state, radiative losses and background heating (checked)."""
         given = {k: v for k, v in (("initial_temperature", initial_temperature), ("initial_density", initial_density),
                                    ("initial_pressure", initial_pressure)) if v is not None}
         if not 1 <= len(given) <= 2:
@@ -450,7 +230,7 @@ class LoopFlareModel:
                 t0 = p0 / (2.0 * n0 * K_B)
             elif n0 is None:
                 n0 = p0 / (2.0 * t0 * K_B)
-            self.loss = _resolve_loss(radiative_loss, n0, abundances)
+            self.loss = resolve_loss(radiative_loss, n0, abundances, self._table)
             name = "initial_temperature" if "initial_temperature" in given else "initial_pressure"
             self._check_t(name, t0)
             if background_heating is None:
@@ -568,8 +348,11 @@ class LoopFlareModel:
         loss = self.loss
         if t0 is not None:
             self._check_t("initial_temperature", t0)
+
             # residual decreases monotonically with n (|F_0| grows at most linearly, c1 n^2 faster)
-            f = lambda ln_n: self._equilibrium_residual(t0, math.exp(ln_n))
+            def f(ln_n):
+                return self._equilibrium_residual(t0, math.exp(ln_n))
+
             lo, hi = math.log(1e-6), math.log(1e25)
             if not f(lo) > 0 > f(hi):
                 raise InputError(f"initial_temperature={t0:.4g} K: no equilibrium density in [1e-6, 1e25] cm-3")
@@ -589,23 +372,26 @@ class LoopFlareModel:
                              f"[{loss.t_min:.4g}, {loss.t_max:.4g}] K (the range of the radiative loss function) "
                              f"for half_length={self._L:.4g} cm")
         k = change[-1]  # the hottest root is the coronal one
-        g = lambda lt: self._equilibrium_residual(10 ** lt, dens(10 ** lt))
+
+        def g(lt):
+            return self._equilibrium_residual(10 ** lt, dens(10 ** lt))
+
         lt = brentq(g, log_t[k], log_t[k + 1], xtol=1e-12)
         return 10 ** lt, dens(10 ** lt)
 
     def _equilibrium(self, t0, n0, p0, given):
         """Static equilibrium; the table Λ is re-evaluated at the equilibrium density until consistent."""
         guess = n0 if n0 is not None else 1e10
-        self.loss = _resolve_loss(self._loss_spec, guess, self._abundances)
-        table_based = self._loss_spec is None or self._loss_spec == "table"
+        self.loss = resolve_loss(self._loss_spec, guess, self._abundances, self._table)
+        table_based = is_table_loss(self._loss_spec)
         for _ in range(5):
             t_eq, n_eq = self._solve_equilibrium(t0, n0, p0, given)
             if not table_based or n0 is not None:
                 break
-            if abs(math.log10(_loss_density(n_eq) / _loss_density(guess))) < 0.02:
+            if abs(math.log10(loss_density(n_eq, self._table) / loss_density(guess, self._table))) < 0.02:
                 break
             guess = n_eq
-            self.loss = _resolve_loss(self._loss_spec, guess, self._abundances)
+            self.loss = resolve_loss(self._loss_spec, guess, self._abundances, self._table)
         self._check_t("initial_temperature" if t0 is not None else
                       ("initial_density" if n0 is not None else "initial_pressure"), t_eq)
         return t_eq, n_eq
@@ -613,18 +399,18 @@ class LoopFlareModel:
     # ------------------------------------------------------------------ public helpers
     def cooling_times(self, temperature, density) -> CoolingTimes:
         """Conductive and radiative cooling times [s] of this loop (its L and Λ) at T, n (Cargill 1994)."""
-        t = _scalar_or_array("temperature", temperature, u.K)
-        n = _scalar_or_array("density", density, u.cm ** -3)
+        t = finite_quantity("temperature", temperature, u.K)
+        n = finite_quantity("density", density, u.cm ** -3)
         check_range("temperature", t.value, lo=self.loss.t_min, hi=self.loss.t_max, unit_label="K")
         check_positive("density", n.value, "cm-3")
         tau_c = conductive_cooling_time(t, n, self.half_length)
-        tau_r = radiative_cooling_time(t, n, radiative_loss=self.loss(t.value) * _LAMBDA_UNIT)
+        tau_r = radiative_cooling_time(t, n, radiative_loss=self.loss(t.value) * LAMBDA_UNIT)
         return CoolingTimes(tau_c, tau_r)
 
     def c1(self, temperature, density) -> np.ndarray:
         """CBK12 ratio c1 of TR to coronal radiative losses at T, n (dimensionless)."""
-        t = _scalar_or_array("temperature", temperature, u.K).value
-        n = _scalar_or_array("density", density, u.cm ** -3).value
+        t = finite_quantity("temperature", temperature, u.K).value
+        n = finite_quantity("density", density, u.cm ** -3).value
         check_range("temperature", t, lo=self.loss.t_min, hi=self.loss.t_max, unit_label="K")
         check_positive("density", n, "cm-3")
         return self._c1(t, n, self.loss(t))
@@ -693,15 +479,26 @@ class LoopFlareModel:
             raise InputError(f"rtol={rtol!r} is outside the valid range [1e-13, 1e-3]")
         user_step = np.inf if max_step is None else self._positive_scalar("max_step", max_step, u.s).value
         out_t = self._output_times(te, n_output, times)
+        t_all, y_all, termination = self._integrate(te, out_t, user_step, rtol)
+        return self._dataset(t_all, np.exp(y_all[0]), np.exp(y_all[1]), termination, rtol)
 
+    def _segments(self, te):
+        """Edges of the integration segments (the heating's start, peak and end inside (0, te)) and the largest
+        solver step while the heating is on."""
         edges = [0.0, te]
         heat_step = np.inf
         if self._profile is not None:
             pr = self._profile
             edges += [x for x in (pr.start, pr.peak, pr.end) if 0.0 < x < te]
             heat_step = pr.half / 10.0 if pr.kind == "triangular" else pr.sigma / 2.0
-        edges = np.unique(edges)
+        return np.unique(edges), heat_step
 
+    def _integrate(self, te, out_t, user_step, rtol):
+        """Solve (ln p, ln n) segment by segment, stopping where T leaves the Λ range.
+
+        Returns (output times, (2, n) array of ln p and ln n at them, termination text).
+        """
+        edges, heat_step = self._segments(te)
         log_tmin, log_tmax = math.log(self.loss.t_min), math.log(self.loss.t_max)
 
         def ev_low(t, y):
@@ -735,13 +532,12 @@ class LoopFlareModel:
                                f"radiative loss range [{self.loss.t_min:.4g}, {self.loss.t_max:.4g}] K")
                 ts.append(np.array([t_stop]))
                 ys.append(y[:, None])
-                warnings.warn(f"LoopFlareModel.run {termination}", RuntimeWarning, stacklevel=2)
+                warnings.warn(f"LoopFlareModel.run {termination}", RuntimeWarning, stacklevel=3)
                 break
         t_all = np.concatenate(ts)
         y_all = np.concatenate(ys, axis=1)
         t_all, keep = np.unique(t_all, return_index=True)
-        y_all = y_all[:, keep]
-        return self._dataset(t_all, np.exp(y_all[0]), np.exp(y_all[1]), termination, rtol)
+        return t_all, y_all[:, keep], termination
 
     def _dataset(self, t, p, n, termination, rtol) -> xr.Dataset:
         temp, lam, c1, rad, f0, q, enthalpy, _, _ = self._terms(t, p, n)
@@ -799,82 +595,3 @@ class LoopFlareModel:
             "equation_of_state": "p = 2 n k_B T (fully ionised hydrogen)",
         })
         return ds
-
-
-# ----------------------------------------------------------------------------- result helpers
-
-class EnergyBudget(NamedTuple):
-    """Time-integrated energies [erg] of a run (see :func:`energy_budget`)."""
-
-    heating: u.Quantity
-    thermal_energy_change: u.Quantity
-    coronal_radiation: u.Quantity
-    through_base: u.Quantity
-    conducted_through_base: u.Quantity
-    enthalpy_through_base: u.Quantity
-    transition_region_radiation: u.Quantity
-    residual: u.Quantity
-    relative_residual: float
-
-
-def _check_result(result):
-    need = ("temperature", "density", "pressure", "heating_rate", "coronal_radiative_loss_rate",
-            "conductive_flux", "enthalpy_flux", "transition_region_radiative_loss_rate")
-    if not isinstance(result, xr.Dataset) or any(k not in result for k in need) or "volume_cm3" not in result.attrs:
-        raise InputError("result must be the xarray.Dataset returned by LoopFlareModel.run")
-    if result.sizes.get("time", 0) < 2:
-        raise InputError("result must hold at least two output times")
-
-
-def energy_budget(result: xr.Dataset) -> EnergyBudget:
-    r"""Energy bookkeeping of a run, by trapezoidal integration of its output over time.
-
-    System: the coronal part of the loop, volume V = 2 L A. Then
-
-    .. math:: \int Q V dt = \Delta(\tfrac32 p V) + \int n^2\Lambda V dt
-              + \int -(F_0 + \tfrac52 p v_0)\, 2A\, dt ,
-
-    the last term being the net energy (conduction plus enthalpy) leaving through the two coronal
-    bases, which the thin transition region radiates (it equals :math:`\int c_1 n^2 \Lambda V dt`,
-    returned as ``transition_region_radiation`` for comparison). ``residual`` is the left side minus
-    the right side; ``relative_residual`` divides it by the heating input.
-    """
-    _check_result(result)
-    t = result["time"].values
-    vol = float(result.attrs["volume_cm3"])
-    area2 = vol / float(result.attrs["half_length_cm"])  # two footpoints, 2 A
-    p = result["pressure"].values
-
-    def integral(values):
-        return float(trapezoid(values, t))
-
-    heat = integral(result["heating_rate"].values) * vol
-    d_thermal = 1.5 * (p[-1] - p[0]) * vol
-    rad_c = integral(result["coronal_radiative_loss_rate"].values) * vol
-    cond = integral(-result["conductive_flux"].values) * area2
-    enth = integral(result["enthalpy_flux"].values) * area2
-    through = cond - enth
-    rad_tr = integral(result["transition_region_radiative_loss_rate"].values) * vol
-    residual = heat - (d_thermal + rad_c + through)
-    q = lambda x: x * u.erg
-    return EnergyBudget(q(heat), q(d_thermal), q(rad_c), q(through), q(cond), q(-enth), q(rad_tr), q(residual),
-                        residual / heat if heat != 0 else float("nan"))
-
-
-class FlareEMTemperature(NamedTuple):
-    """Emission measure and temperature histories of a run, as Quantities."""
-
-    time: u.Quantity
-    emission_measure: u.Quantity
-    temperature: u.Quantity
-
-
-def flare_em_temperature(result: xr.Dataset) -> FlareEMTemperature:
-    """Time [s], volume emission measure EM(t) = n^2 V [cm-3] and coronal-average T(t) [K] of a run.
-
-    Folding through an instrument temperature response K_b(T) gives the count rate
-    ``rate_b(t) = EM(t) K_b(T(t))`` of an isothermal loop at each time.
-    """
-    _check_result(result)
-    return FlareEMTemperature(result["time"].values * u.s, result["emission_measure"].values * u.cm ** -3,
-                              result["temperature"].values * u.K)

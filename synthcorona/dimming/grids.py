@@ -88,7 +88,7 @@ def _grid_point(recipe: dict, idx: tuple) -> dict:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         sc = DimmingScenario(star, recipe["corona"], cme, recipe["flare"], inst, obs, recovery=recipe["recovery"],
-                             upflow_fraction=recipe["upflow_fraction"])
+                             upflow_fraction=recipe["upflow_fraction"], table=recipe["table"])
     if bands is None and len(sc.labels) != 1:
         raise InputError(f"instrument entry {inst!r} gives bands {sc.labels}; on the instrument axis give "
                          "(instrument, band) so that each entry has one band")
@@ -134,14 +134,10 @@ def _grid_chunk(holder: _Recipe, idxs: list) -> list:
 
 def _portable(x):
     """A copy of an instrument entry that can be sent to worker processes (response caches left behind)."""
-    from collections import OrderedDict
-
     from ..instruments.instrument import Instrument
 
     if isinstance(x, Instrument):
-        c = copy.copy(x)
-        c._cache, c._kcache = OrderedDict(), OrderedDict()
-        return c
+        return x.without_caches()
     if isinstance(x, tuple):
         return tuple(_portable(v) for v in x)
     return x
@@ -187,7 +183,7 @@ def detection_grid(base_scenario, distance=None, nh=None, exposure=None, bin_wid
     ----------
     base_scenario : DimmingScenario
         Everything not on an axis is taken from it (its star, corona, CME, flare, instruments,
-        observation, recovery model).
+        observation, recovery model, emissivity table).
     distance, nh, exposure, bin_width, mass : Quantity (1-D or scalar), optional
         Axes; each given one becomes a dimension of the result (in that order). ``exposure``
         and ``bin_width`` keep the base observation's ``pre_event``.
@@ -231,7 +227,45 @@ def detection_grid(base_scenario, distance=None, nh=None, exposure=None, bin_wid
     if not isinstance(base_scenario, DimmingScenario):
         raise InputError(f"base_scenario={base_scenario!r} must be a DimmingScenario")
     n_realisations = int(n_realisations)
-    given = {"distance": distance, "nh": nh, "exposure": exposure, "bin_width": bin_width, "mass": mass}
+    axes, inst_list = _grid_axes(dict(distance=distance, nh=nh, exposure=exposure, bin_width=bin_width, mass=mass),
+                                 instrument)
+    base = base_scenario
+    outer = [n for n in ("distance", "nh", "exposure", "bin_width") if n in axes]
+    if inst_list is not None:
+        outer.append("instrument")
+    mass_vals = axes["mass"][0] if "mass" in axes else np.array([float(base.cme.mass.to_value(u.g))])
+    outer_values = {n: inst_list if n == "instrument" else axes[n][0] for n in outer}
+    shape_outer = [len(outer_values[n]) for n in outer]
+    if inst_list is None:
+        bands = [band] if band is not None else list(base.labels)
+        if band is not None:
+            base.band_index(band)
+    else:
+        bands = None
+
+    points = list(itertools.product(*[range(s) for s in shape_outer]))
+    recipe = {"star": base.star, "corona": base.corona, "cme": base.cme, "flare": base.flare,
+              "observation": base.observation, "recovery": base.recovery, "upflow_fraction": base.upflow_fraction,
+              # the base scenario's table, by its file where it has one (sent to workers as a path)
+              "table": base.table.path if base.table.path is not None else base.table,
+              "bands": [(lab, ins, b) for lab, ins, b in base.bands], "outer": outer,
+              "outer_values": outer_values, "mass_vals": mass_vals, "bands_eval": bands,
+              "n_realisations": n_realisations, "statistic": statistic, "seed": seed, "min_mass": bool(min_mass),
+              "target_probability": target_probability, "bracket": bracket, "band": band}
+    if scheduler is None:
+        results = (_grid_point(recipe, idx) for idx in points)
+        results = tqdm(results, total=len(points), disable=not progress, desc="detection grid")
+    else:
+        results = _grid_distributed(recipe, points, scheduler, n_workers, chunk_size, progress)
+    arrays = _collect(results, shape_outer, mass_vals.size, 1 if bands is None else len(bands), min_mass)
+    ds = _grid_dataset(base, arrays, axes, outer, inst_list, mass_vals, bands, recipe)
+    if "mass" not in axes:
+        ds = ds.isel(mass=0)
+    return ds
+
+
+def _grid_axes(given: dict, instrument):
+    """The given axes, name -> (values, unit label), and the instrument entries (None without an instrument axis)."""
     axes = {}
     for name, unit, label in _AXES:
         if given[name] is not None:
@@ -240,60 +274,41 @@ def detection_grid(base_scenario, distance=None, nh=None, exposure=None, bin_wid
     if instrument is not None:
         inst_list = list(instrument) if isinstance(instrument, (list, tuple)) and not (
             isinstance(instrument, tuple) and len(instrument) == 2 and isinstance(instrument[1], str)) else [instrument]
-        inst_labels = [_instrument_label(x) for x in inst_list]
-    base = base_scenario
-    outer = [n for n in ("distance", "nh", "exposure", "bin_width") if n in axes]
-    if inst_list is not None:
-        outer.append("instrument")
-    mass_vals = axes["mass"][0] if "mass" in axes else np.array([float(base.cme.mass.to_value(u.g))])
+        for x in inst_list:
+            _instrument_label(x)
+    return axes, inst_list
 
-    def outer_values(name):
-        return inst_list if name == "instrument" else axes[name][0]
 
-    shape_outer = [len(outer_values(n)) for n in outer]
-    if inst_list is None:
-        bands = [band] if band is not None else list(base.labels)
-        if band is not None:
-            base._band_index(band)
-    else:
-        bands = None
-    nb = 1 if bands is None else len(bands)
-    prob = np.full(shape_outer + [mass_vals.size, nb], np.nan)
-    perr = np.full_like(prob, np.nan)
-    depth = np.full_like(prob, np.nan)
-    mmin = np.full(shape_outer, np.nan)
-    mmin_err = np.full(shape_outer, np.nan)
-    mmin_band = np.empty(shape_outer, dtype=object)
+def _collect(results, shape_outer, n_mass, nb, min_mass) -> dict:
+    """The point results gathered into arrays over the outer axes (+ mass, band); notes in grid order."""
+    prob = np.full(shape_outer + [n_mass, nb], np.nan)
+    out = {"prob": prob, "perr": np.full_like(prob, np.nan), "depth": np.full_like(prob, np.nan),
+           "mmin": np.full(shape_outer, np.nan), "mmin_err": np.full(shape_outer, np.nan),
+           "mmin_band": np.empty(shape_outer, dtype=object)}
     notes = []
-
-    points = list(itertools.product(*[range(s) for s in shape_outer]))
-    recipe = {"star": base.star, "corona": base.corona, "cme": base.cme, "flare": base.flare,
-              "observation": base.observation, "recovery": base.recovery, "upflow_fraction": base.upflow_fraction,
-              "bands": [(lab, ins, b) for lab, ins, b in base.bands], "outer": outer,
-              "outer_values": {n: outer_values(n) for n in outer}, "mass_vals": mass_vals, "bands_eval": bands,
-              "n_realisations": n_realisations, "statistic": statistic, "seed": seed, "min_mass": bool(min_mass),
-              "target_probability": target_probability, "bracket": bracket, "band": band}
-    if scheduler is None:
-        results = (_grid_point(recipe, idx) for idx in points)
-        results = tqdm(results, total=len(points), disable=not progress, desc="detection grid")
-    else:
-        results = _grid_distributed(recipe, points, scheduler, n_workers, chunk_size, progress)
     for res in results:
         idx = res["idx"]
-        prob[idx], perr[idx], depth[idx] = res["prob"], res["perr"], res["depth"]
+        for key in ("prob", "perr", "depth"):
+            out[key][idx] = res[key]
         if min_mass:
-            mmin[idx], mmin_err[idx], mmin_band[idx] = res["mmin"], res["mmin_err"], res["mmin_band"]
+            for key in ("mmin", "mmin_err", "mmin_band"):
+                out[key][idx] = res[key]
             if res["note"]:
                 notes.append((idx, res["note"]))
-    notes = [n for _, n in sorted(notes)]   # grid order, whatever order the points finished in
+    out["notes"] = [n for _, n in sorted(notes)]   # grid order, whatever order the points finished in
+    return out
 
+
+def _grid_dataset(base, arrays, axes, outer, inst_list, mass_vals, bands, recipe) -> xr.Dataset:
+    """The result Dataset of :func:`detection_grid` (with a ``mass`` dimension)."""
+    prob, perr, depth = arrays["prob"], arrays["perr"], arrays["depth"]
     dims = list(outer) + ["mass"] + ([] if bands is None else ["band"])
     if bands is None:
         prob, perr, depth = prob[..., 0], perr[..., 0], depth[..., 0]
     coords = {}
     for n in outer:
         if n == "instrument":
-            coords["instrument"] = inst_labels
+            coords["instrument"] = [_instrument_label(x) for x in inst_list]
         else:
             coords[n] = (n, axes[n][0], {"units": axes[n][1]})
     coords["mass"] = ("mass", mass_vals, {"units": "g"})
@@ -304,26 +319,24 @@ def detection_grid(base_scenario, distance=None, nh=None, exposure=None, bin_wid
         "probability_error": (dims, perr, {"units": "1", "long_name": "binomial Monte Carlo error"}),
         "depth": (dims, depth, {"units": "1", "long_name": "full fractional count-rate depth"}),
     }
+    min_mass, target_probability = recipe["min_mass"], recipe["target_probability"]
     if min_mass:
-        data["minimum_detectable_mass"] = (outer, mmin, {"units": "g",
-                                                         "long_name": f"mass where P(detect) = {target_probability:g}"})
-        data["minimum_detectable_mass_error"] = (outer, mmin_err, {"units": "g"})
-        data["minimum_detectable_mass_band"] = (outer, mmin_band.astype(str))
+        data["minimum_detectable_mass"] = (outer, arrays["mmin"], {
+            "units": "g", "long_name": f"mass where P(detect) = {target_probability:g}"})
+        data["minimum_detectable_mass_error"] = (outer, arrays["mmin_err"], {"units": "g"})
+        data["minimum_detectable_mass_band"] = (outer, arrays["mmin_band"].astype(str))
     attrs = {
-        "statistic": statistic, "n_realisations": n_realisations, "seed": str(seed),
+        "statistic": recipe["statistic"], "n_realisations": recipe["n_realisations"], "seed": str(recipe["seed"]),
         "false_alarm": float(base.observation.false_alarm),
-        "base_instruments": str(base._attrs()["instruments"]),
+        "base_instruments": str(base.result_attrs()["instruments"]),
         "abundances": str(base.corona.abundances),
-        "source_density_cm-3": float(base.density),
+        "source_density_cm-3": float(base.prepared.source.density),
         "source_temperature_K": float(base.cme.source_temperature.to_value(u.K)),
         "method": ("P(detect) by injection/recovery at every grid point "
                    "(DimmingScenario.detection_probability), same seed everywhere (synthcorona.dimming.grids)"),
     }
     if min_mass:
         attrs["target_probability"] = float(target_probability)
-        attrs["min_mass_bracket_g"] = [float(as_quantity("bracket", b, u.g).value) for b in bracket]
-        attrs["min_mass_notes"] = "; ".join(notes) if notes else "all grid points bracketed"
-    ds = xr.Dataset(data, coords=coords, attrs=attrs)
-    if "mass" not in axes:
-        ds = ds.isel(mass=0)
-    return ds
+        attrs["min_mass_bracket_g"] = [float(as_quantity("bracket", b, u.g).value) for b in recipe["bracket"]]
+        attrs["min_mass_notes"] = "; ".join(arrays["notes"]) if arrays["notes"] else "all grid points bracketed"
+    return xr.Dataset(data, coords=coords, attrs=attrs)

@@ -62,11 +62,12 @@ class DimmingLightCurveModel:
 
         if not isinstance(scenario, DimmingScenario):
             raise InputError(f"scenario={scenario!r} must be a DimmingScenario")
+        rates, flare = scenario.prepared.rates, scenario.prepared.flare
         self.bands = list(scenario.labels)
-        self.quiescent_rate = scenario.quiescent_rate.copy()
-        self.depth_per_gram = scenario.depth_per_gram.copy()
+        self.quiescent_rate = rates.quiescent_rate.copy()
+        self.depth_per_gram = rates.depth_per_gram.copy()
         self._qd = self.quiescent_rate * self.depth_per_gram
-        self._qx = self.quiescent_rate * scenario.expansion_depth     # expansion dimming (0 unless enabled)
+        self._qx = self.quiescent_rate * rates.expansion_depth     # expansion dimming (0 unless enabled)
         self._q_col = self.quiescent_rate[:, None]
         self.onset = scenario.onset
         self.recovery_time = scenario.recovery_time
@@ -74,12 +75,12 @@ class DimmingLightCurveModel:
         self.mass = float(scenario.cme.mass.to_value(u.g))
         self.max_mass = float(scenario.max_mass.value)
         self.bin_width = scenario.bin_width
-        self.background = scenario.background.copy()
+        self.background = rates.background.copy()
         self.has_flare = scenario.flare is not None
-        self._tf = scenario.flare_time.copy()
-        self._cum = scenario.flare_cumulative.copy()
+        self._tf = flare.times.copy()
+        self._cum = flare.cumulative.copy()
         self._tf0, self._tf1 = float(self._tf[0]), float(self._tf[-1])
-        self.attrs = scenario._attrs()
+        self.attrs = scenario.result_attrs()
 
     # ------------------------------------------------------------------ evaluation
     def _edges(self, times, bin_width):

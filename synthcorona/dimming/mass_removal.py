@@ -261,7 +261,7 @@ def band_depths(removed, quiescent_weights, kernel, names=None) -> np.ndarray:
     if np.any(~(base > 0)):
         bad = [names[i] if names is not None else i for i in np.flatnonzero(~(base > 0))]
         raise InputError(f"band {bad} has no counts from the quiescent corona (sum EM K = 0): its dimming depth "
-                         "is undefined; choose a band where the corona emits")
+                         "is undefined; choose a band where the corona emits", argument="band")
     return (np.asarray(removed, dtype=float) @ k.T) / base
 
 

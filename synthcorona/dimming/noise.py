@@ -418,7 +418,7 @@ class CountSampler:
     -----
     Calling the sampler, ``sampler(n_realisations, seed, chunk_size)``, returns an iterator
     of int64 arrays of shape (rows, n_columns) with ``rows <= chunk_size``; this is the
-    ``null_sampler`` interface of :func:`synthcorona.dimming.statistics.calibrate_threshold`.
+    ``null_sampler`` interface of :func:`synthcorona.dimming.thresholds.calibrate_threshold`.
     """
 
     def __init__(self, rate, bin_width, *, background=None, red_noise=None, groups=None, start_time=0 * u.s):

@@ -12,7 +12,7 @@ from __future__ import annotations
 import math
 
 from ..validation import check_range
-from .statistics import MIN_EXCEEDANCES
+from .thresholds import MIN_EXCEEDANCES
 
 __all__ = ["MIN_EXCEEDANCES", "minimum_realisations"]
 

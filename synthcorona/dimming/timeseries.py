@@ -182,67 +182,20 @@ def lightcurve_from_em_series(em, instrument, distance, nh=None, bands=None, tab
         Bad dims/coordinates/units, negative or non-finite EM, or EM outside the table's
         temperature range (the message names the node and the range).
     """
-    from ..emissivity import load_emissivity
-    from .scenario import _resolve_instruments
+    from ..emissivity import resolve_table
 
     da, source = _load(em)
     td, x_user = _temperature_axis(da)
-    unit = _unit_of(da, "em")
-    if unit.is_equivalent(u.cm ** -3 / u.K):
-        raise InputError(f"em has units '{unit}' (a DEM per kelvin); this function takes EM per temperature bin "
-                         "(units 'cm-3'): multiply each node by its bin width in K first")
-    if not unit.is_equivalent(u.cm ** -3):
-        raise InputError(f"em has units '{unit}'; expected a volume emission measure per temperature bin, 'cm-3'")
-    da = da.transpose("time", td)
-    values = (np.asarray(da.values, dtype=float) * unit).to_value(u.cm ** -3)
-    check_range("em", values, lo=0.0, unit_label="cm-3")
+    values = _em_values(da, td)
     secs, origin = _time_axis(da)
 
     d_cm = float(np.asarray(as_quantity("distance", distance, u.cm).value))
     check_range("distance", d_cm, lo=0.0, unit_label="cm", inclusive=False)
-    if table is None:
-        table = load_emissivity()
+    table = resolve_table(table)
     x = np.asarray(table.logT, dtype=float)
-
-    r = regrid_weights(x_user, x)
-    outside = ~r.any(axis=1)
-    if np.any(outside):
-        em_out = values[:, outside]
-        if np.any(em_out > 0):
-            j = np.flatnonzero(outside)[np.argmax(em_out.max(axis=0) > 0)]
-            raise InputError(
-                f"em has emission measure at {td} node log10 T = {x_user[j]:.4g} (T = {10 ** x_user[j]:.4g} K), "
-                f"outside the emissivity table's range log10 T = [{x[0]:g}, {x[-1]:g}] "
-                f"([{10 ** x[0]:.4g}, {10 ** x[-1]:.4g}] K); drop or fold that emission first")
-    w = values @ r                                                     # (n_time, n_T)
-
-    if bands is not None:
-        from ..instruments.designs import load_generic
-        from ..instruments.instrument import Instrument
-
-        if isinstance(instrument, str):
-            instrument = load_generic(instrument)
-        if not isinstance(instrument, Instrument):
-            raise InputError("bands= needs a single instrument (Instrument or generic name); for several "
-                             "instruments pass a dict label -> (instrument, band)")
-        blist = [bands] if (isinstance(bands, str) or isinstance(bands, u.Quantity)
-                            or (isinstance(bands, tuple) and len(bands) == 2
-                                and isinstance(bands[0], u.Quantity))) else list(bands)
-        resolved = [(b if isinstance(b, str) else f"{instrument.name}:{i}", instrument, b)
-                    for i, b in enumerate(blist)]
-    else:
-        resolved = _resolve_instruments(instrument)
-
-    rows, los, his, names = [], [], [], []
-    attrs_k = None
-    for label, ins, band in resolved:
-        k = ins.temperature_response(table=table, abundances=abundances, density=density, bands=band, nh=nh)
-        rows.append(np.asarray(k.values[0], dtype=float))
-        los.append(float(k.band_lo.values[0]))
-        his.append(float(k.band_hi.values[0]))
-        names.append(ins.name)
-        attrs_k = attrs_k or dict(k.attrs)
-    kern = np.array(rows)                                              # (n_b, n_T)
+    w = _on_table_grid(values, x_user, x, td)                          # (n_time, n_T)
+    resolved = _resolve_bands(instrument, bands)
+    kern, los, his, names, attrs_k = _band_kernels(resolved, table, abundances, density, nh)   # kern (n_b, n_T)
     scale = (PARSEC_CM / d_cm) ** 2
     rates = (w @ kern.T).T * scale                                     # (n_b, n_time)
     labels = [lab for lab, _, _ in resolved]
@@ -272,3 +225,68 @@ def lightcurve_from_em_series(em, instrument, distance, nh=None, bands=None, tab
                 "band_lo": ("band", np.array(los), {"units": "keV"}),
                 "band_hi": ("band", np.array(his), {"units": "keV"})},
         attrs=attrs)
+
+
+def _em_values(da, td) -> np.ndarray:
+    """EM values (n_time, n_nodes) [cm-3] of the series ``da`` with temperature dim ``td``; units and signs checked."""
+    unit = _unit_of(da, "em")
+    if unit.is_equivalent(u.cm ** -3 / u.K):
+        raise InputError(f"em has units '{unit}' (a DEM per kelvin); this function takes EM per temperature bin "
+                         "(units 'cm-3'): multiply each node by its bin width in K first")
+    if not unit.is_equivalent(u.cm ** -3):
+        raise InputError(f"em has units '{unit}'; expected a volume emission measure per temperature bin, 'cm-3'")
+    values = (np.asarray(da.transpose("time", td).values, dtype=float) * unit).to_value(u.cm ** -3)
+    check_range("em", values, lo=0.0, unit_label="cm-3")
+    return values
+
+
+def _on_table_grid(values, x_user, x, td) -> np.ndarray:
+    """EM (n_time, n_T) re-gridded from the user's nodes ``x_user`` onto the table's ``x`` (log10 K); EM at a
+    node outside the table range is refused."""
+    r = regrid_weights(x_user, x)
+    outside = ~r.any(axis=1)
+    if np.any(outside):
+        em_out = values[:, outside]
+        if np.any(em_out > 0):
+            j = np.flatnonzero(outside)[np.argmax(em_out.max(axis=0) > 0)]
+            raise InputError(
+                f"em has emission measure at {td} node log10 T = {x_user[j]:.4g} (T = {10 ** x_user[j]:.4g} K), "
+                f"outside the emissivity table's range log10 T = [{x[0]:g}, {x[-1]:g}] "
+                f"([{10 ** x[0]:.4g}, {10 ** x[-1]:.4g}] K); drop or fold that emission first")
+    return values @ r
+
+
+def _resolve_bands(instrument, bands) -> list:
+    """(label, Instrument, band) of every band to fold: ``bands`` of a single instrument, or every named band of
+    each instrument (:func:`synthcorona.instruments.channels.resolve_channels`)."""
+    from ..instruments.channels import resolve_channels
+
+    if bands is None:
+        return resolve_channels(instrument)
+    from ..instruments.designs import load_generic
+    from ..instruments.instrument import Instrument
+
+    if isinstance(instrument, str):
+        instrument = load_generic(instrument)
+    if not isinstance(instrument, Instrument):
+        raise InputError("bands= needs a single instrument (Instrument or generic name); for several "
+                         "instruments pass a dict label -> (instrument, band)")
+    blist = [bands] if (isinstance(bands, str) or isinstance(bands, u.Quantity)
+                        or (isinstance(bands, tuple) and len(bands) == 2
+                            and isinstance(bands[0], u.Quantity))) else list(bands)
+    return [(b if isinstance(b, str) else f"{instrument.name}:{i}", instrument, b) for i, b in enumerate(blist)]
+
+
+def _band_kernels(resolved, table, abundances, density, nh):
+    """Temperature responses of the resolved bands: (kernel (n_b, n_T) [ct s-1 cm3 at 1 pc], band lower and
+    upper limits [keV], instrument names, attrs of the first response)."""
+    rows, los, his, names = [], [], [], []
+    attrs_k = None
+    for _, ins, band in resolved:
+        k = ins.temperature_response(table=table, abundances=abundances, density=density, bands=band, nh=nh)
+        rows.append(np.asarray(k.values[0], dtype=float))
+        los.append(float(k.band_lo.values[0]))
+        his.append(float(k.band_hi.values[0]))
+        names.append(ins.name)
+        attrs_k = attrs_k or dict(k.attrs)
+    return np.array(rows), los, his, names, attrs_k

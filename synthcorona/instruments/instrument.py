@@ -300,6 +300,14 @@ class Instrument:
                 f"({alo:.6g}-{ahi:.6g} keV)")
         return lo, hi
 
+    def without_caches(self) -> "Instrument":
+        """A shallow copy with empty response-matrix caches: cheap to send to worker processes."""
+        import copy
+
+        c = copy.copy(self)
+        c._cache = OrderedDict()
+        return c
+
     def with_bands(self, **bands) -> "Instrument":
         """Return a copy with bands added (a band of an existing name is replaced).
 

@@ -16,7 +16,6 @@ from __future__ import annotations
 
 import dataclasses
 import pathlib
-import re
 import warnings
 from dataclasses import dataclass
 from typing import Any
@@ -24,43 +23,16 @@ from typing import Any
 import astropy.units as u
 import numpy as np
 
+from ..dimming.flare_energy import FLARE_CLASS_FLUX, flare_energy_from_class
 from ..errors import InputError, ScenarioError
 from .toml import Section, abundances_from_key, dem_from_section, load_toml
 
 __all__ = ["ForecastInputs", "MonteCarlo", "InstrumentEntry", "read_forecast_file", "flare_energy_from_class",
            "FLARE_CLASS_FLUX", "STATISTICS"]
 
-#: Peak 1-8 Angstrom flux (W m-2) at 1 AU of class letter 1.0 (standard solar soft-X-ray classification).
-FLARE_CLASS_FLUX = {"A": 1e-8, "B": 1e-7, "C": 1e-6, "M": 1e-5, "X": 1e-4}
-#: Total flare energy of an X1 flare (peak 1-8 Angstrom flux 1e-4 W m-2 at 1 AU).
-X1_ENERGY_ERG = 1e32
 #: Detection statistics of :meth:`DimmingScenario.detection_probability`.
 STATISTICS = ("window", "likelihood")
 
-_CLASS_RE = re.compile(r"^\s*([ABCMX])\s*([0-9]+(?:\.[0-9]*)?)\s*$", re.IGNORECASE)
-
-
-def flare_energy_from_class(flare_class: str) -> u.Quantity:
-    """Total flare energy [erg] for a soft-X-ray flare class such as ``"M2.5"``.
-
-    E = 1e32 erg x F_peak / (1e-4 W m-2), with F_peak the class's peak 1-8 Angstrom flux at
-    1 AU (:data:`FLARE_CLASS_FLUX`): an X1 flare releases ~1e32 erg in total, the order of the
-    bolometric energies of X-class solar flares found by Emslie et al. (2012, ApJ 759, 71)
-    (from memory; the linear proportionality to the peak flux is common practice, no source, and
-    the scatter between events is about an order of magnitude). For a star, the class is the
-    flux the flare would produce at 1 AU from the star.
-    """
-    if not isinstance(flare_class, str):
-        raise InputError(f"class={flare_class!r} must be a string like \"M2.5\"")
-    m = _CLASS_RE.match(flare_class)
-    if not m:
-        raise InputError(f"class=\"{flare_class}\" is not a flare class; write a letter A, B, C, M or X and a "
-                         "number, e.g. \"M2.5\" or \"X10\"")
-    mult = float(m.group(2))
-    if not 0 < mult < 1e4:
-        raise InputError(f"class=\"{flare_class}\": the number must be in (0, 1e4)")
-    flux = FLARE_CLASS_FLUX[m.group(1).upper()] * mult
-    return X1_ENERGY_ERG * flux / 1e-4 * u.erg
 
 
 @dataclass(frozen=True)

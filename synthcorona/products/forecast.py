@@ -138,10 +138,10 @@ def _light_curve_products(sc, nshow: int, seed: int):
     """
     lc = sc.light_curve(seed=seed, n_realisations=nshow) if nshow > 0 else sc.light_curve()
     lc0 = sc.light_curve(seed=seed, n_realisations=nshow, mass=0 * u.g) if nshow > 0 else None
-    q = sc.quiescent_rate
+    q = sc.prepared.rates.quiescent_rate
     net = np.max((q[:, None] - lc["expected"].values) / q[:, None], axis=1)
     t_edges = sc.edges
-    w0, w1 = (float(x.to_value(u.s)) for x in sc._windows()[1])
+    w0, w1 = (float(x.to_value(u.s)) for x in sc.detection_windows()[1])
     lo_e, hi_e = np.clip(t_edges[:-1], w0, w1), np.clip(t_edges[1:], w0, w1)
     frac = (hi_e - lo_e) / np.diff(t_edges)                    # part of each bin inside the post-event window
     widths = np.diff(t_edges)
@@ -226,9 +226,9 @@ def _depth_variables(sc, d, net_depth) -> dict:
         "depth_energy_flux": (band, d["depth_energy_flux"].values,
                               {"units": "1", "long_name": "full fractional energy-flux depth (band limits)"}),
         "net_depth": net_depth,
-        "quiescent_rate": (band, sc.quiescent_rate, {"units": "ct / s"}),
+        "quiescent_rate": (band, sc.prepared.rates.quiescent_rate, {"units": "ct / s"}),
         "quiescent_energy_flux": (band, d["quiescent_energy_flux"].values, {"units": "erg / (s cm2)"}),
-        "background": (band, sc.background, {"units": "ct / s"}),
+        "background": (band, sc.prepared.rates.background, {"units": "ct / s"}),
         "rate_decrement": (band, d["rate_decrement"].values,
                            {"units": "ct / s", "long_name": "full dimming decrement of the count rate"}),
     }
@@ -257,10 +257,10 @@ def _curve_variables(sc, lc, inputs) -> dict:
         "flare_excess": (curve, lc["flare_excess"].values, {"units": "ct / s"}),
         "dimming_decrement": (curve, lc["dimming_decrement"].values, {"units": "ct / s"}),
         # temperature responses used (ct s-1 cm3 at 1 pc, ISM absorption included)
-        "temperature_response": (("band", "logT"), sc.kernel,
+        "temperature_response": (("band", "logT"), sc.prepared.bands.kernel,
                                  {"units": "ct cm3 / s", "long_name": "temperature response at 1 pc, ISM absorption "
                                                                       "included"}),
-        "dem_em_weights": (("logT",), sc.quiescent_weights,
+        "dem_em_weights": (("logT",), sc.prepared.source.quiescent_weights,
                            {"units": "cm-3", "long_name": "quiescent EM per table temperature node"}),
         "onset_time": ((), onset, {"units": "s", "long_name": "linear rise time of the dimming"}),
         "recovery_time": ((), tau, {"units": "s", "long_name": "e-folding recovery time"}),
@@ -272,7 +272,7 @@ def _curve_variables(sc, lc, inputs) -> dict:
 
 def _attrs(sc, table, inputs, n, seed, stat, bracket, mass_note, window) -> dict:
     """Provenance: the scenario's settings, the scenario file's text and hash, the Monte Carlo and the table."""
-    attrs = {k: (v if isinstance(v, (str, int, float)) else str(v)) for k, v in sc._attrs().items()}
+    attrs = {k: (v if isinstance(v, (str, int, float)) else str(v)) for k, v in sc.result_attrs().items()}
     text = inputs.raw_text
     attrs.update({
         "title": inputs.title,
@@ -296,7 +296,7 @@ def _attrs(sc, table, inputs, n, seed, stat, bracket, mass_note, window) -> dict
         "post_event_window_s": f"{window[0]:.6g} {window[1]:.6g}",
         "synthcorona_version": _version(),
         "created": datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds"),
-        "method": attrs.get("method", "") + "; P(detect) by injection-recovery (synthcorona.dimming.statistics)",
+        "method": attrs.get("method", "") + "; P(detect) by injection-recovery (synthcorona.dimming.detection)",
     })
     attrs.update(table_provenance(table))
     return attrs
@@ -358,8 +358,8 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
     coords = {"band": list(sc.labels), "mass": ("mass", grid, {"units": "g"}),
               "time": ("time", lc["time"].values, {"units": "s", "long_name": "bin centre from the start"}),
               "logT": ("logT", sc.logT, {"units": "log10(K)"}),
-              "band_lo": ("band", sc.band_limits[:, 0], {"units": "keV"}),
-              "band_hi": ("band", sc.band_limits[:, 1], {"units": "keV"})}
+              "band_lo": ("band", sc.prepared.bands.band_limits[:, 0], {"units": "keV"}),
+              "band_hi": ("band", sc.prepared.bands.band_limits[:, 1], {"units": "keV"})}
     attrs = _attrs(sc, tab, inputs, n, sd, stat, bracket, mass_note, window)
     return xr.Dataset(data, coords=coords, attrs=attrs)
 
