@@ -16,7 +16,6 @@ so the grid is the same number for number whatever runs it (``docs/distributed.m
 """
 from __future__ import annotations
 
-import copy
 import dataclasses
 import itertools
 import math
