@@ -23,7 +23,7 @@ def run(quick):
     tf, _, _ = best_of(lambda: (w @ K.T) * (1.0 / 10.0) ** 2, n=7)
     return {"seconds": t, "cpu": c, "arrays": {"rates": r.value[:200]},
             "note": f"{n} DEMs x {len(names)} bands; DEM weights {tw * 1e3:.0f} ms and the fold w @ K^T "
-                    f"{tf * 1e3:.0f} ms of it"}
+                    f"{tf * 1e3:.1f} ms of it"}
 
 
 def baseline(quick):

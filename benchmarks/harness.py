@@ -76,13 +76,17 @@ def spawn(specs, quick, timeout):
             proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=se, start_new_session=True,
                                     env={**os.environ, "MPLBACKEND": "Agg"})
         deadline, killed = t0 + timeout, False
-        while not (status := os.wait4(proc.pid, os.WNOHANG))[0]:  # wait4: the rusage of this child alone
-            if time.perf_counter() > deadline:
-                if killed:
-                    raise RuntimeError(f"benchmark process {proc.pid} did not exit 30 s after SIGKILL")
-                os.killpg(proc.pid, signal.SIGKILL)  # the whole group: also any workers it started
-                killed, deadline = True, deadline + 30
-            time.sleep(0.02)
+        try:
+            while not (status := os.wait4(proc.pid, os.WNOHANG))[0]:  # wait4: the rusage of this child alone
+                if time.perf_counter() > deadline:
+                    if killed:
+                        raise RuntimeError(f"benchmark process {proc.pid} did not exit 30 s after SIGKILL")
+                    os.killpg(proc.pid, signal.SIGKILL)  # the whole group: also any workers it started
+                    killed, deadline = True, deadline + 30
+                time.sleep(0.02)
+        except KeyboardInterrupt:
+            os.killpg(proc.pid, signal.SIGKILL)
+            raise
         proc.returncode = os.waitstatus_to_exitcode(status[1])
         wall, rss = time.perf_counter() - t0, status[2].ru_maxrss / 1024.0  # KiB on Linux
         if out.exists():
