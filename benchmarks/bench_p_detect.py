@@ -83,8 +83,10 @@ BENCHMARKS = [
          baseline=baseline_window, source=SOURCE,
          about=f"detection_probability, window statistic (pre 0-95 s, post 400-1000 s), {CURVES} vs per "
                "realisation: numpy Poisson draw + scipy.stats.binomtest (300 + 300, scaled)"),
+    # one BLAS thread: the baseline's L-BFGS-B calls tiny BLAS routines, and with OpenBLAS's threads competing for
+    # a busy 2-core machine they ran up to 10x slower, varying 10x from run to run (ours is unaffected)
     dict(name="p_detect_likelihood", unit="s", target=("max", 2.0), run=lambda quick: _p_detect(quick, "likelihood"),
-         baseline=baseline_likelihood, source=SOURCE,
+         baseline=baseline_likelihood, source=SOURCE, env={"OPENBLAS_NUM_THREADS": "1"},
          about=f"detection_probability, likelihood (Cash) statistic, {CURVES} vs per realisation: Poisson draw + "
                "scipy.optimize.minimize (L-BFGS-B with gradient) of the Cash statistic (300 + 300, scaled)"),
     dict(name="p_detect_window_red", unit="s", target=None,

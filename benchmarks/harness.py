@@ -5,7 +5,7 @@
 Each bench_*.py file lists its rows in ``BENCHMARKS``: dicts with ``name``, ``unit`` ("s": the time the part
 returns; "MB": peak RSS of its process; other units: the ``value`` it returns), ``target`` (None, ("max", v) or
 ("min_ratio", v) for baseline/measured), ``about``, ``source`` (of the target), ``run(quick) -> dict`` and
-optionally ``baseline(quick) -> dict``, ``agree(ours, base) -> str`` and ``timeout`` (s). A part returns
+optionally ``baseline(quick) -> dict``, ``agree(ours, base) -> str``, ``timeout`` (s) and ``env`` (variables). A part returns
 {"seconds", "cpu", "note", ...}. Each part runs in a fresh interpreter killed after its timeout; its peak RSS
 is the ``ru_maxrss`` of that child (os.wait4). ``--smoke`` runs every ``run`` at quick sizes in one process.
 """
@@ -66,15 +66,16 @@ def worker(specs, quick, out):
     pathlib.Path(out).write_bytes(pickle.dumps(results))
 
 
-def spawn(specs, quick, timeout):
-    """Run ``specs`` in a fresh interpreter: (results, peak RSS MiB, wall s); the process is killed at ``timeout``."""
+def spawn(specs, quick, timeout, env=None):
+    """Run ``specs`` in a fresh interpreter (with the environment variables ``env`` added): (results, peak RSS MiB,
+    wall s); the process is killed at ``timeout``."""
     with tempfile.TemporaryDirectory(prefix="scbench-") as tmp:
         out, err = pathlib.Path(tmp) / "results.pkl", pathlib.Path(tmp) / "stderr"
         cmd = [sys.executable, __file__, "--worker", ",".join(specs), "--out", str(out)] + ["--quick"] * quick
         t0 = time.perf_counter()
         with err.open("w") as se:
             proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=se, start_new_session=True,
-                                    env={**os.environ, "MPLBACKEND": "Agg"})
+                                    env={**os.environ, "MPLBACKEND": "Agg", **(env or {})})
         deadline, killed = t0 + timeout, False
         try:
             while not (status := os.wait4(proc.pid, os.WNOHANG))[0]:  # wait4: the rusage of this child alone
@@ -182,10 +183,10 @@ def main(argv=None):
     for n in names if not args.smoke else ():
         b = benches[n]
         limit = args.timeout or b.get("timeout", 1800)
-        (ours,), rss, wall = spawn([f"{n}:run"], args.quick, limit)
+        (ours,), rss, wall = spawn([f"{n}:run"], args.quick, limit, b.get("env"))
         (base,), rss_b = (None,), None
         if b.get("baseline") and "seconds" in ours:
-            (base,), rss_b, wall_b = spawn([f"{n}:baseline"], args.quick, limit)
+            (base,), rss_b, wall_b = spawn([f"{n}:baseline"], args.quick, limit, b.get("env"))
             wall += wall_b
         rows.append(make_row(b, ours, base, rss, rss_b, wall))
         print(f"  ran {n} in {wall:.0f} s", file=sys.stderr, flush=True)
