@@ -2,6 +2,7 @@
 
 Figures of these results are in :mod:`synthcorona.plotting.dimming`.
 """
+from .detection import detection_probability, minimum_detectable
 from .grids import detection_grid
 from .lightcurve_model import DimmingLightCurveModel
 from .mass_removal import (
@@ -12,8 +13,10 @@ from .mass_removal import (
     removed_emission_measure,
     rtv_density,
 )
+from .noise import chunk_size_for, iter_realisations, poisson_counts
 from .profile import cooling_time, dimming_profile, onset_time, recovery_time, refill_time, sound_speed
 from .scenario import CME, Corona, DimmingScenario, Flare, Observation, Star
+from .statistics import likelihood_ratio, window_test
 from .timeseries import lightcurve_from_em_series
 
 __all__ = [
@@ -21,4 +24,6 @@ __all__ = [
     "cooling_time", "dimming_profile", "onset_time", "recovery_time", "refill_time", "sound_speed",
     "CME", "Corona", "DimmingScenario", "Flare", "Observation", "Star", "DimmingLightCurveModel",
     "lightcurve_from_em_series", "detection_grid",
+    "detection_probability", "minimum_detectable", "likelihood_ratio", "window_test", "chunk_size_for",
+    "iter_realisations", "poisson_counts",
 ]

@@ -289,6 +289,11 @@ class DimmingScenario:
         return self.prepared.timing.edges
 
     @property
+    def n_bins(self) -> int:
+        """Number of bins of the observation (``prepared.timing.n_bins``)."""
+        return self.prepared.timing.n_bins
+
+    @property
     def flare_termination(self) -> str:
         """How the flare run ended ("no flare", "reached t_end", or where and why it stopped)."""
         return self.prepared.flare.termination

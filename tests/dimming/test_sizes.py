@@ -2,7 +2,7 @@
 import pytest
 
 from synthcorona.dimming.sizes import MIN_EXCEEDANCES, minimum_realisations
-from synthcorona.dimming.statistics import calibrate_threshold
+from synthcorona.dimming.thresholds import calibrate_threshold
 from synthcorona.errors import InputError
 
 
