@@ -30,7 +30,8 @@ def baseline(quick):
 
     def call():
         rates = [ins.count_rate(cor.dem, distance=star.distance, nh=star.nh, band=band, abundances=cor.abundances,
-                                density=scenario.emissivity_density * u.cm**-3) for _, ins, band in scenario.bands]
+                                density=scenario.prepared.source.emissivity_density * u.cm**-3)
+                 for _, ins, band in scenario.channels]
         return rates, scenario.light_curve(mass=5e17 * u.g)
     call()
     n = 5 if quick else 20

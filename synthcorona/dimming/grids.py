@@ -247,7 +247,7 @@ def detection_grid(base_scenario, distance=None, nh=None, exposure=None, bin_wid
               "observation": base.observation, "recovery": base.recovery, "upflow_fraction": base.upflow_fraction,
               # the base scenario's table, by its file where it has one (sent to workers as a path)
               "table": base.table.path if base.table.path is not None else base.table,
-              "bands": [(lab, ins, b) for lab, ins, b in base.bands], "outer": outer,
+              "bands": [(lab, ins, b) for lab, ins, b in base.channels], "outer": outer,
               "outer_values": outer_values, "mass_vals": mass_vals, "bands_eval": bands,
               "n_realisations": n_realisations, "statistic": statistic, "seed": seed, "min_mass": bool(min_mass),
               "target_probability": target_probability, "bracket": bracket, "band": band}

@@ -177,7 +177,7 @@ class PreparedScenario:
     #: The CME source plasma and the mass -> EM conversion.
     source: SourcePlasma
     #: The bands' temperature responses.
-    bands: BandKernels
+    kernels: BandKernels
     #: Rates and depths per band.
     rates: BandRates
     #: Onset, recovery and bins.
@@ -186,16 +186,16 @@ class PreparedScenario:
     flare: FlareExcess
 
 
-def prepare_scenario(star, corona, cme, flare, bands, observation, *, recovery, upflow_fraction,
+def prepare_scenario(star, corona, cme, flare, channels, observation, *, recovery, upflow_fraction,
                      table) -> PreparedScenario:
     """The :class:`PreparedScenario` of the scenario inputs.
 
-    ``bands``: the resolved (label, Instrument, band name) list; ``table`` a resolved
+    ``channels``: the resolved (label, Instrument, band name) list; ``table`` a resolved
     EmissivityTable; the rest as for :class:`~synthcorona.dimming.scenario.DimmingScenario`.
     """
     source = prepare_source(corona, cme, table)
     source.check_mass(cme.mass.to_value(u.g))
-    kernels = prepare_kernels(bands, star, corona, source, table)
+    kernels = prepare_kernels(channels, star, corona, source, table)
     rates = prepare_rates(kernels, source, star, observation)
     timing = prepare_timing(cme, corona, source, observation, recovery, upflow_fraction)
     excess = prepare_flare(flare, kernels, source, timing, corona, table)
@@ -246,7 +246,7 @@ def prepare_source(corona, cme, table) -> SourcePlasma:
                         em_per_gram=n_src * escape / (mu_h * M_H_G), max_mass=max_mass)
 
 
-def prepare_kernels(bands, star, corona, source: SourcePlasma, table) -> BandKernels:
+def prepare_kernels(channels, star, corona, source: SourcePlasma, table) -> BandKernels:
     """Temperature responses of the bands (grouped per instrument), at the source's emissivity density."""
     from ..instruments.observables import absorbed_band_kernel, nh_value
     from ..synthesis import prepare
@@ -256,14 +256,14 @@ def prepare_kernels(bands, star, corona, source: SourcePlasma, table) -> BandKer
     rows, eflux, limits = [], [], []
     prep = prepare(table, corona.abundances, density)
     nhv = nh_value(nh)
-    for _, ins, band in bands:
+    for _, ins, band in channels:
         K = ins.temperature_response(abundances=corona.abundances, density=density, bands=band, nh=nh)
         rows.append(np.asarray(K.values[0], dtype=float))
         blo, bhi = float(K.band_lo.values[0]), float(K.band_hi.values[0])
         limits.append((blo, bhi))
         eflux.append(absorbed_band_kernel(np.array([[blo, bhi]]), prep, nhv)[0])
     d_cm = float(star.distance.to_value(u.cm))
-    return BandKernels(labels=tuple(b[0] for b in bands), band_limits=np.array(limits), kernel=np.array(rows),
+    return BandKernels(labels=tuple(b[0] for b in channels), band_limits=np.array(limits), kernel=np.array(rows),
                        flux_kernel=np.array(eflux), scale=(PARSEC_CM / d_cm) ** 2)
 
 

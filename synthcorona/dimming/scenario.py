@@ -238,12 +238,12 @@ class DimmingScenario:
             raise InputError(f"flare={flare!r} must be a Flare or None")
         self.star, self.corona, self.cme, self.flare, self.observation = star, corona, cme, flare, observation
         #: The resolved bands: list of (label, Instrument, band name).
-        self.bands = resolve_channels(instrument)
+        self.channels = resolve_channels(instrument)
         self.recovery = recovery
         self.upflow_fraction = upflow_fraction
         self.table = resolve_table(table)
         #: The prepared state (:class:`~synthcorona.dimming.prepared.PreparedScenario`).
-        self.prepared: PreparedScenario = prepare_scenario(star, corona, cme, flare, self.bands, observation,
+        self.prepared: PreparedScenario = prepare_scenario(star, corona, cme, flare, self.channels, observation,
                                                            recovery=recovery, upflow_fraction=upflow_fraction,
                                                            table=self.table)
 
@@ -251,7 +251,7 @@ class DimmingScenario:
     @property
     def labels(self) -> list:
         """Band labels, in order (a new list)."""
-        return list(self.prepared.bands.labels)
+        return list(self.prepared.kernels.labels)
 
     @property
     def logT(self) -> np.ndarray:
@@ -360,7 +360,7 @@ class DimmingScenario:
             "recovery_method": str(self.recovery),
             "cme_onset_time_s": timing.t0,
             "flare_termination": self.prepared.flare.termination,
-            "instruments": ", ".join(f"{lab}={ins.name}/{b}" for lab, ins, b in self.bands),
+            "instruments": ", ".join(f"{lab}={ins.name}/{b}" for lab, ins, b in self.channels),
             "method": ("mass-loss dimming: Delta EM = n_e f_esc M / (mu_H m_H) spread over the source temperatures; "
                        "depth = sum Delta EM K / sum EM K per band (synthcorona.dimming)"),
         }
@@ -396,7 +396,7 @@ class DimmingScenario:
         ``rate_decrement`` [ct/s], ``quiescent_energy_flux`` [erg s-1 cm-2],
         ``energy_flux_decrement`` [erg s-1 cm-2], ``removed_emission_measure`` [cm-3].
         """
-        rates, limits = self.prepared.rates, self.prepared.bands.band_limits
+        rates, limits = self.prepared.rates, self.prepared.kernels.band_limits
         m = np.atleast_1d(self._mass_g(mass))
         d = self.depths_for(m)                                              # (n_m, n_b)
         df = m[:, None] * rates.flux_depth_per_gram + rates.flux_expansion_depth

@@ -120,7 +120,7 @@ def phase_scenario(ref, dem: DEM, star, table=None):
     corona = dataclasses.replace(ref.corona, dem=dem)
     if not isinstance(ref, DimmingScenario):          # forecast-file inputs
         return ref.build_scenario(star=star, corona=corona, table=table)
-    return DimmingScenario(star, corona, ref.cme, ref.flare, {lab: (ins, b) for lab, ins, b in ref.bands},
+    return DimmingScenario(star, corona, ref.cme, ref.flare, {lab: (ins, b) for lab, ins, b in ref.channels},
                            ref.observation, recovery=ref.recovery, upflow_fraction=ref.upflow_fraction,
                            table=ref.table if table is None else table)
 

@@ -257,7 +257,7 @@ def _curve_variables(sc, lc, inputs) -> dict:
         "flare_excess": (curve, lc["flare_excess"].values, {"units": "ct / s"}),
         "dimming_decrement": (curve, lc["dimming_decrement"].values, {"units": "ct / s"}),
         # temperature responses used (ct s-1 cm3 at 1 pc, ISM absorption included)
-        "temperature_response": (("band", "logT"), sc.prepared.bands.kernel,
+        "temperature_response": (("band", "logT"), sc.prepared.kernels.kernel,
                                  {"units": "ct cm3 / s", "long_name": "temperature response at 1 pc, ISM absorption "
                                                                       "included"}),
         "dem_em_weights": (("logT",), sc.prepared.source.quiescent_weights,
@@ -358,8 +358,8 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
     coords = {"band": list(sc.labels), "mass": ("mass", grid, {"units": "g"}),
               "time": ("time", lc["time"].values, {"units": "s", "long_name": "bin centre from the start"}),
               "logT": ("logT", sc.logT, {"units": "log10(K)"}),
-              "band_lo": ("band", sc.prepared.bands.band_limits[:, 0], {"units": "keV"}),
-              "band_hi": ("band", sc.prepared.bands.band_limits[:, 1], {"units": "keV"})}
+              "band_lo": ("band", sc.prepared.kernels.band_limits[:, 0], {"units": "keV"}),
+              "band_hi": ("band", sc.prepared.kernels.band_limits[:, 1], {"units": "keV"})}
     attrs = _attrs(sc, tab, inputs, n, sd, stat, bracket, mass_note, window)
     return xr.Dataset(data, coords=coords, attrs=attrs)
 

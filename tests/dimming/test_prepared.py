@@ -27,13 +27,13 @@ def test_parts_shapes_and_units(sun):
     p = sun.prepared
     assert isinstance(p, PreparedScenario)
     n_t, n_b = p.source.logT.size, len(BANDS)
-    assert p.bands.labels == tuple(BANDS) and sun.labels == BANDS
+    assert p.kernels.labels == tuple(BANDS) and sun.labels == BANDS
     assert p.source.quiescent_weights.shape == p.source.removal_weights.shape == (n_t,)
     assert p.source.removal_weights.sum() == pytest.approx(1.0, rel=1e-12)
-    assert p.bands.kernel.shape == p.bands.flux_kernel.shape == (n_b, n_t)
-    assert p.bands.band_limits.shape == (n_b, 2)
+    assert p.kernels.kernel.shape == p.kernels.flux_kernel.shape == (n_b, n_t)
+    assert p.kernels.band_limits.shape == (n_b, 2)
     # (1 pc / 1 AU)^2 = (1 AU / 1 pc)^2 inverted: 206264.8^2
-    assert p.bands.scale == pytest.approx((PARSEC_CM / u.AU.to(u.cm)) ** 2, rel=1e-12)
+    assert p.kernels.scale == pytest.approx((PARSEC_CM / u.AU.to(u.cm)) ** 2, rel=1e-12)
     for field in dataclasses.fields(p.rates):
         assert getattr(p.rates, field.name).shape == (n_b,)
     # 12 h of 60 s bins, onset at 2 h
@@ -58,7 +58,7 @@ def test_prepared_values_give_the_public_results(sun):
                                rtol=1e-12)
     np.testing.assert_array_equal(d.quiescent_rate.values, p.rates.quiescent_rate)
     # quiescent rate = (1 pc/d)^2 sum_T K EM
-    np.testing.assert_allclose(p.rates.quiescent_rate, p.bands.scale * (p.bands.kernel @ p.source.quiescent_weights),
+    np.testing.assert_allclose(p.rates.quiescent_rate, p.kernels.scale * (p.kernels.kernel @ p.source.quiescent_weights),
                                rtol=1e-12)
     lc = sun.light_curve()
     np.testing.assert_array_equal(lc.flare_excess.values, p.flare.binned(p.timing.edges, p.timing.t0))

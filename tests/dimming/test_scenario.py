@@ -144,7 +144,7 @@ def test_expansion_in_scenario_and_model():
     d0, dx = s.depth().depth.values, sx.depth().depth.values
     assert dx[1] > d0[1] + 0.01
     # the expansion term is exactly -(K . Delta EM_exp) / (K . EM) per band, added to the mass-loss depth
-    kernel, src = sx.prepared.bands.kernel, sx.prepared.source
+    kernel, src = sx.prepared.kernels.kernel, sx.prepared.source
     np.testing.assert_allclose(dx - d0, -(kernel @ src.expansion_change) / (kernel @ src.quiescent_weights),
                                rtol=1e-9)
     lc = sx.light_curve()
