@@ -48,6 +48,9 @@ myst_enable_extensions = ["dollarmath"]
 myst_heading_anchors = 3
 
 nitpicky = False
+# Shape names in numpydoc type fields ("(n_bins,) ndarray") are looked up as Python objects; where two
+# classes document an attribute of that name the lookup is ambiguous. Those are not links anyone wants.
+suppress_warnings = ["ref.python"]
 
 html_theme = "alabaster"
 html_title = f"synthcorona {release}"
