@@ -5,6 +5,7 @@ file and key), so that callers decide what to do from fields, never from the mes
 
 * :class:`InputError` -- a user-supplied value is invalid (a ``ValueError``).
 * :class:`ScenarioError` -- a mistake in an input file (TOML); names the file and the key.
+* :class:`MemoryBudgetError` -- a computation would need more memory than the budget allows.
 * :class:`TableFileError` -- an emissivity table file is missing, corrupted or foreign.
 * :class:`ChiantiNotFoundError` -- no usable CHIANTI database was found.
 * :class:`InstrumentFileError` / :class:`InstrumentFileWarning` -- instrument response files.
@@ -14,7 +15,7 @@ file and key), so that callers decide what to do from fields, never from the mes
 """
 from __future__ import annotations
 
-__all__ = ["InputError", "ScenarioError", "TableFileError", "ChiantiNotFoundError", "InstrumentFileError",
+__all__ = ["InputError", "ScenarioError", "MemoryBudgetError", "TableFileError", "ChiantiNotFoundError", "InstrumentFileError",
            "InstrumentFileWarning", "BracketError", "CliError", "DependencyError"]
 
 
@@ -36,6 +37,28 @@ class InputError(ValueError):
 
 class ScenarioError(InputError):
     """A mistake in an input file; the message names the file and the key."""
+
+
+class MemoryBudgetError(InputError):
+    """A computation would need more memory than the budget (:func:`synthcorona.memory.memory_budget`).
+
+    Attributes
+    ----------
+    what : str
+        What would be allocated (e.g. ``"spectrum of 400,000,000 bins"``).
+    estimate : int
+        Estimated bytes needed.
+    budget : int
+        The memory budget in bytes.
+    argument : str
+        The argument, key or option to change.
+    """
+
+    def __init__(self, message: str, *, what: str, estimate: int, budget: int, argument: str | None = None):
+        super().__init__(message, argument=argument)
+        self.what = what
+        self.estimate = int(estimate)
+        self.budget = int(budget)
 
 
 class TableFileError(InputError):
