@@ -62,7 +62,22 @@ class MemoryBudgetError(InputError):
 
 
 class TableFileError(InputError):
-    """An emissivity table file is missing, corrupted, or not a synthcorona table."""
+    """An emissivity table file is missing, corrupted, or not a synthcorona table.
+
+    Attributes
+    ----------
+    path : str or None
+        The table file.
+    variable, attribute : str or None
+        The variable and its attribute that failed verification, when the error is about one
+        (e.g. ``"line_emissivity"``, ``"delta_axes"``).
+    """
+
+    def __init__(self, message: str = "", *, path=None, variable: str | None = None, attribute: str | None = None):
+        super().__init__(message, argument=None)
+        self.path = None if path is None else str(path)
+        self.variable = variable
+        self.attribute = attribute
 
 
 class ChiantiNotFoundError(InputError):
