@@ -36,7 +36,21 @@ class InputError(ValueError):
 
 
 class ScenarioError(InputError):
-    """A mistake in an input file; the message names the file and the key."""
+    """A mistake in an input file; the message names the file and the key.
+
+    Attributes
+    ----------
+    file : str or None
+        The input file, when the error is about the file as a whole (e.g. it is not UTF-8 text).
+    byte_offset : int or None
+        Position in the file (bytes from its start) of the offending byte, when known.
+    """
+
+    def __init__(self, message: str = "", *, argument: str | None = None, file: str | None = None,
+                 byte_offset: int | None = None):
+        super().__init__(message, argument=argument)
+        self.file = file
+        self.byte_offset = byte_offset
 
 
 class MemoryBudgetError(InputError):

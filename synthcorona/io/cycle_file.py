@@ -204,15 +204,17 @@ def _reference(root: Section):
     return read_forecast_file(path, build=False), str(path)
 
 
-def read_cycle_file(path_or_text, *, name: str | None = None) -> CycleInputs:
-    """Read a cycle file (TOML path or text) into :class:`CycleInputs`; keys in ``docs/cycle_reference.md``.
+def read_cycle_file(path=None, *, text: str | None = None, name: str | None = None) -> CycleInputs:
+    """Read a cycle file into :class:`CycleInputs`; keys in ``docs/cycle_reference.md``.
 
-    Every mistake raises :class:`~synthcorona.errors.ScenarioError` naming the file and the key.
+    ``path`` is always a file path (UTF-8 text); TOML text is read with ``text=`` (``name`` names it in
+    messages; relative paths in it are taken relative to ``name``'s folder). Every mistake raises
+    :class:`~synthcorona.errors.ScenarioError` naming the file and the key.
     """
     from ..dimming.sizes import MIN_EXCEEDANCES, minimum_realisations
 
-    root = load_toml(path_or_text, name=name)
-    is_file = root.file != "<string>" and pathlib.Path(root.file).is_file()
+    root = load_toml(path, text=text, name=name)
+    is_file = path is not None
     title = root.string("title", default=pathlib.Path(root.file).stem if is_file else "activity cycle")
     period = root.quantity("period", u.yr, default=None, lo=0.0, lo_inclusive=False, hi=1e4)
     reference, ref_path = _reference(root)
