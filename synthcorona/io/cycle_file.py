@@ -96,7 +96,7 @@ def _phase_value(p: Section):
 
 
 def _phases(root: Section) -> list:
-    from ..products.cycle_phase import CyclePhase
+    from ..products.cycle_phase import CyclePhase, coincident_phases
 
     secs = root.sections("phase", required=True)
     if len(secs) < 2:
@@ -130,7 +130,19 @@ def _phases(root: Section) -> list:
                               width_dex=width)
         p.finish()
         out.append(phase_obj)
+    same = coincident_phases(out)
+    if same is not None:
+        (i, a), (j, b) = ((k, out[k]) for k in same)
+        raise ScenarioError(f"{root.file}: [[phase]]: phases '{a.label}' ([{secs[i].path}]) and '{b.label}' "
+                            f"([{secs[j].path}]) are at the same time (phase = {_phase_text(secs[i])} and "
+                            f"{_phase_text(secs[j])}); every phase needs its own time", argument="phase")
     return out
+
+
+def _phase_text(p: Section) -> str:
+    """The ``phase`` key of a [[phase]] table as written in the file."""
+    v = p.data.get("phase")
+    return f'"{v}"' if isinstance(v, str) else f"{v!r}"
 
 
 def _abs_spec(spec: str, file: str) -> str:

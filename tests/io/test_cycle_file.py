@@ -57,6 +57,13 @@ def test_hardness_of_unreported_band_names_the_key():
         read_cycle_file(text=text, name="bad.toml")
 
 
+def test_two_phases_at_the_same_time_name_both():
+    text = MINIMAL.replace("phase = 0.5", "phase = 0.0")
+    with pytest.raises(ScenarioError, match=r"c.toml: \[\[phase\]\]: phases 'a' \(\[phase\[0\]\]\) and 'b' "
+                                            r"\(\[phase\[1\]\]\) are at the same time \(phase = 0.0 and 0.0\)"):
+        read_cycle_file(text=text, name="c.toml")
+
+
 def test_non_utf8_byte_names_file_and_offset(tmp_path):
     raw = MINIMAL.encode()
     at = raw.index(b'title = "t"') + len(b'title = "')
