@@ -5,6 +5,7 @@ file and key), so that callers decide what to do from fields, never from the mes
 
 * :class:`InputError` -- a user-supplied value is invalid (a ``ValueError``).
 * :class:`ScenarioError` -- a mistake in an input file (TOML); names the file and the key.
+* :class:`MemoryBudgetError` -- a computation would need more memory than the budget allows.
 * :class:`TableFileError` -- an emissivity table file is missing, corrupted or foreign.
 * :class:`ChiantiNotFoundError` -- no usable CHIANTI database was found.
 * :class:`InstrumentFileError` / :class:`InstrumentFileWarning` -- instrument response files.
@@ -14,7 +15,7 @@ file and key), so that callers decide what to do from fields, never from the mes
 """
 from __future__ import annotations
 
-__all__ = ["InputError", "ScenarioError", "TableFileError", "ChiantiNotFoundError", "InstrumentFileError",
+__all__ = ["InputError", "ScenarioError", "MemoryBudgetError", "TableFileError", "ChiantiNotFoundError", "InstrumentFileError",
            "InstrumentFileWarning", "BracketError", "CliError", "DependencyError"]
 
 
@@ -35,11 +36,62 @@ class InputError(ValueError):
 
 
 class ScenarioError(InputError):
-    """A mistake in an input file; the message names the file and the key."""
+    """A mistake in an input file; the message names the file and the key.
+
+    Attributes
+    ----------
+    file : str or None
+        The input file, when the error is about the file as a whole (e.g. it is not UTF-8 text).
+    byte_offset : int or None
+        Position in the file (bytes from its start) of the offending byte, when known.
+    """
+
+    def __init__(self, message: str = "", *, argument: str | None = None, file: str | None = None,
+                 byte_offset: int | None = None):
+        super().__init__(message, argument=argument)
+        self.file = file
+        self.byte_offset = byte_offset
+
+
+class MemoryBudgetError(InputError):
+    """A computation would need more memory than the budget (:func:`synthcorona.memory.memory_budget`).
+
+    Attributes
+    ----------
+    what : str
+        What would be allocated (e.g. ``"spectrum of 400,000,000 bins"``).
+    estimate : int
+        Estimated bytes needed.
+    budget : int
+        The memory budget in bytes.
+    argument : str
+        The argument, key or option to change.
+    """
+
+    def __init__(self, message: str, *, what: str, estimate: int, budget: int, argument: str | None = None):
+        super().__init__(message, argument=argument)
+        self.what = what
+        self.estimate = int(estimate)
+        self.budget = int(budget)
 
 
 class TableFileError(InputError):
-    """An emissivity table file is missing, corrupted, or not a synthcorona table."""
+    """An emissivity table file is missing, corrupted, or not a synthcorona table.
+
+    Attributes
+    ----------
+    path : str or None
+        The table file.
+    variable, attribute : str or None
+        The variable and its attribute that failed verification, when the error is about one
+        (e.g. ``"line_emissivity"``, ``"delta_axes"``).
+    """
+
+    def __init__(self, message: str = "", *, path=None, variable: str | None = None, attribute: str | None = None):
+        super().__init__(message, argument=None)
+        self.path = None if path is None else str(path)
+        self.variable = variable
+        self.attribute = attribute
 
 
 class ChiantiNotFoundError(InputError):

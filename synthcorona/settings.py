@@ -1,15 +1,18 @@
 """Settings that come from the environment, read here and nowhere else.
 
-Three environment variables change where synthcorona finds its inputs:
+Four environment variables change where synthcorona finds its inputs and how much memory it uses:
 
-========================== =========================================================================
-``SYNTHCORONA_TABLE``      an emissivity table file used wherever no ``table=`` is passed
-                           (default: the table embedded in the package)
-``SYNTHCORONA_CHIANTI``    an ASCII CHIANTI tree, or a ``.tar.xz`` of one, for the table builder and
-                           CHIANTI's instrument-response files
-``SYNTHCORONA_SCHEDULER``  a dask.distributed scheduler address (``tcp://host:port``) for table
-                           builds and detection grids
-========================== =========================================================================
+============================= ======================================================================
+``SYNTHCORONA_TABLE``         an emissivity table file used wherever no ``table=`` is passed
+                              (default: the table embedded in the package)
+``SYNTHCORONA_CHIANTI``       an ASCII CHIANTI tree, or a ``.tar.xz`` of one, for the table builder
+                              and CHIANTI's instrument-response files
+``SYNTHCORONA_SCHEDULER``     a dask.distributed scheduler address (``tcp://host:port``) for table
+                              builds and detection grids
+``SYNTHCORONA_MEMORY_BUDGET`` the memory one computation may use, in bytes (``"4000000000"``) or
+                              with a unit (``"4 GB"``, ``"512 MiB"``); default: half the memory
+                              available when the computation starts (:mod:`synthcorona.memory`)
+============================= ======================================================================
 
 Each function reads the variable when called (so that a test or a long-lived session can change
 it); an empty value counts as unset. Library code takes explicit arguments (``table=``,
@@ -19,8 +22,12 @@ from __future__ import annotations
 
 import os
 import pathlib
+import re
 
-__all__ = ["TABLE_ENV", "CHIANTI_ENV", "SCHEDULER_ENV", "table_path", "chianti_path", "scheduler_address"]
+from .errors import InputError
+
+__all__ = ["TABLE_ENV", "CHIANTI_ENV", "SCHEDULER_ENV", "MEMORY_BUDGET_ENV", "table_path", "chianti_path",
+           "scheduler_address", "memory_budget_setting", "parse_bytes"]
 
 #: Environment variable naming an emissivity table file.
 TABLE_ENV = "SYNTHCORONA_TABLE"
@@ -28,6 +35,13 @@ TABLE_ENV = "SYNTHCORONA_TABLE"
 CHIANTI_ENV = "SYNTHCORONA_CHIANTI"
 #: Environment variable naming a dask.distributed scheduler address.
 SCHEDULER_ENV = "SYNTHCORONA_SCHEDULER"
+#: Environment variable giving the memory budget of one computation (bytes, or a number with a unit).
+MEMORY_BUDGET_ENV = "SYNTHCORONA_MEMORY_BUDGET"
+
+#: Byte units accepted by :func:`parse_bytes` (lower case): decimal (kB, MB, ...) and binary (KiB, MiB, ...).
+_BYTE_UNITS = {"": 1, "b": 1, "byte": 1, "bytes": 1, "kb": 10**3, "mb": 10**6, "gb": 10**9, "tb": 10**12,
+               "kib": 2**10, "mib": 2**20, "gib": 2**30, "tib": 2**40}
+_BYTES_RE = re.compile(r"^\s*([0-9]*\.?[0-9]+(?:[eE][+-]?[0-9]+)?)\s*([A-Za-z]*)\s*$")
 
 
 def _value(name: str) -> str | None:
@@ -50,3 +64,26 @@ def chianti_path() -> pathlib.Path | None:
 def scheduler_address() -> str | None:
     """The scheduler address in ``$SYNTHCORONA_SCHEDULER``, or None when unset."""
     return _value(SCHEDULER_ENV)
+
+
+def parse_bytes(text: str, name: str = MEMORY_BUDGET_ENV) -> int:
+    """A memory size: a number of bytes (``"4000000000"``) or a number with a unit (``"4 GB"``, ``"512 MiB"``).
+
+    Units: B, kB, MB, GB, TB (powers of 1000) and KiB, MiB, GiB, TiB (powers of 1024), any case.
+    Raises :class:`~synthcorona.errors.InputError` naming ``name`` unless the size is at least 1 byte.
+    """
+    m = _BYTES_RE.match(str(text))
+    unit = m.group(2).lower() if m else None
+    if m is None or unit not in _BYTE_UNITS:
+        raise InputError(f"{name}={text!r}: give a memory size in bytes or with a unit, e.g. '4 GB' or '512 MiB' "
+                         "(units B, kB, MB, GB, TB, KiB, MiB, GiB, TiB)", argument=name)
+    size = float(m.group(1)) * _BYTE_UNITS[unit]
+    if not size >= 1:
+        raise InputError(f"{name}={text!r} is below 1 byte; valid range >= 1 B", argument=name)
+    return int(size)
+
+
+def memory_budget_setting() -> int | None:
+    """The memory budget in bytes from ``$SYNTHCORONA_MEMORY_BUDGET`` (see :func:`parse_bytes`), or None when unset."""
+    v = _value(MEMORY_BUDGET_ENV)
+    return parse_bytes(v) if v else None

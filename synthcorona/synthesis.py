@@ -14,6 +14,11 @@ A volume DEM (cm^-3) gives luminosities (erg s-1 into 4π); with ``distance`` th
 at Earth ``L / (4π d^2)``. A column DEM (cm^-5) gives the intensity
 ``EM * eps / (4π sr)`` [erg cm-2 s-1 sr-1].
 
+Band fluxes and luminosities take a batch of DEMs; ``distance`` broadcasts against the batch
+(numpy rules), and the batch is worked through in chunks that fit the memory budget
+(:mod:`synthcorona.batch`, :mod:`synthcorona.memory`). A spectrum is for one DEM at one distance;
+its grid is checked against the memory budget before anything is allocated.
+
 Line profiles (optional) are Gaussians integrated over each bin: thermal Doppler
 width ``sigma_lambda = lambda / c * sqrt(k T_line / m_ion)`` (Rybicki & Lightman 1979,
 eq. 10.73 — the thermal Doppler profile) at the emission-measure-weighted formation
@@ -28,17 +33,30 @@ import xarray as xr
 from scipy.special import erf
 
 from .abundances import resolve_abundances
+from .batch import broadcast_batch, fold
 from .constants import AMU_G, C_CGS, HC_KEV_ANGSTROM, K_B_CGS, K_B_KEV, KEV_TO_ERG
 from .emissivity import EmissivityTable, load_emissivity
 from .errors import InputError
+from .memory import check_allocation
 from .spectral import Band, SpectralGrid
 from .validation import as_quantity, check_finite
 
 __all__ = ["synthesize", "band_flux", "luminosity", "radiative_loss", "band_kernel", "emissivity_matrix",
-           "prepare", "PreparedTable", "dem_weights", "band_list", "line_sigma"]
+           "prepare", "PreparedTable", "dem_weights", "check_dem", "band_list", "line_sigma", "spectrum_nbytes",
+           "SPECTRUM_BYTES_PER_BIN"]
 
 _FOUR_PI = 4.0 * np.pi
 _FWHM_TO_SIGMA = 1.0 / (2.0 * np.sqrt(2.0 * np.log(2.0)))
+#: Work memory of :func:`synthesize` per output bin, bytes (tracemalloc peaks on the embedded table: 120 per bin,
+#: 190 with thermal broadening or in photon units; the xarray result holds 16 of them).
+SPECTRUM_BYTES_PER_BIN = 200
+
+
+def spectrum_nbytes(n_bins: float, prep: "PreparedTable | None" = None) -> float:
+    """Estimated peak memory (bytes) of :func:`synthesize` on a grid of ``n_bins`` bins: the per-bin arrays, and
+    with ``prep`` up to three (lines, temperatures) arrays of the table's line values."""
+    lines = 0 if prep is None else 3 * 8 * prep.line_power.size
+    return SPECTRUM_BYTES_PER_BIN * float(n_bins) + lines
 
 
 class PreparedTable:
@@ -167,16 +185,23 @@ def prepare(table=None, abundances="coronal", density=None, pressure=None) -> Pr
     return hit
 
 
+def check_dem(dem) -> u.UnitBase:
+    """The EM unit (cm-3 or cm-5) of ``dem``; :class:`InputError` if it is not a DEM model."""
+    from .dem import DEM
+
+    if not isinstance(dem, DEM):
+        raise InputError(f"dem={dem!r} is not a DEM model (e.g. synthcorona.GaussianDEM)", argument="dem")
+    return dem.em_unit
+
+
 def dem_weights(dem, prep: PreparedTable) -> tuple[np.ndarray, u.UnitBase]:
     """EM per node of the prepared table's log T grid (plain floats) and its unit (cm-3 or cm-5).
 
     Refuses a DEM with emission measure where the table has no emissivity (see
-    :meth:`PreparedTable.check_dem_weights`).
+    :meth:`PreparedTable.check_dem_weights`). For a large batch use :func:`synthcorona.batch.fold`,
+    which works in chunks.
     """
-    from .dem import DEM
-
-    if not isinstance(dem, DEM):
-        raise InputError(f"dem={dem!r} is not a DEM model (e.g. synthcorona.GaussianDEM)")
+    check_dem(dem)
     w = dem.em_weights(prep.table.logT)
     unit = w.unit
     w = np.asarray(w.value, dtype=float)
@@ -185,18 +210,19 @@ def dem_weights(dem, prep: PreparedTable) -> tuple[np.ndarray, u.UnitBase]:
 
 
 def _output_scale(em_unit, distance):
-    """Factor and unit turning EM * emissivity into the output quantity."""
+    """Factor (an array of the distance's shape) and unit turning EM * emissivity into the output quantity."""
     if em_unit.is_equivalent(u.cm ** -5):
         if distance is not None:
-            raise InputError("distance is meaningless for a column DEM (cm^-5): the result is an intensity per sr")
-        return 1.0 / _FOUR_PI, u.sr ** -1, "intensity"
+            raise InputError("distance is meaningless for a column DEM (cm^-5): the result is an intensity per sr",
+                             argument="distance")
+        return np.asarray(1.0 / _FOUR_PI), u.sr ** -1, "intensity"
     if distance is None:
-        return 1.0, u.dimensionless_unscaled, "luminosity"
+        return np.asarray(1.0), u.dimensionless_unscaled, "luminosity"
     d = as_quantity("distance", distance, u.cm)
     check_finite("distance", d)
     if np.any(d.value <= 0):
-        raise InputError(f"distance={distance} must be > 0")
-    return 1.0 / (_FOUR_PI * d.value ** 2), u.cm ** -2, "flux"
+        raise InputError(f"distance={distance} must be > 0", argument="distance")
+    return 1.0 / (_FOUR_PI * np.asarray(d.value, dtype=float) ** 2), u.cm ** -2, "flux"
 
 
 def band_kernel(bands_kev: np.ndarray, prep: PreparedTable, photons: bool = False) -> np.ndarray:
@@ -259,11 +285,14 @@ def band_list(band) -> tuple[np.ndarray, list]:
 
 def _band_quantity(dem, band, distance, table, abundances, density, pressure, photons):
     prep = prepare(table, abundances, density, pressure)
-    w, em_unit = dem_weights(dem, prep)
+    em_unit = check_dem(dem)
     bands, labels = band_list(band)
     k = band_kernel(bands, prep, photons=photons)  # (n_b, T)
     scale, extra_unit, kind = _output_scale(em_unit, distance)
-    vals = (w @ k.T) * scale  # batch + (n_b,)
+    shape = broadcast_batch(dem.batch_shape, distance=scale.shape)
+    vals = fold(dem, prep, k, shape=shape, name=f"band {kind}",
+                what_to_change="dem (a smaller batch)" + (" or distance" if distance is not None else ""))
+    vals = vals * scale[..., None]  # shape + (n_b,)
     base = (u.ph if photons else u.erg) / u.s
     unit = base * em_unit * u.cm ** 3 * extra_unit
     q = u.Quantity(vals, unit)
@@ -285,7 +314,9 @@ def band_flux(dem, band, distance, table=None, abundances="coronal", density=Non
     band : Quantity
         Two wavelengths or two energies; or an (n, 2) Quantity / dict name → pair for several bands.
     distance : Quantity [length]
-        Distance of the star.
+        Distance of the star (> 0); an array broadcasts against the DEM batch shape (numpy rules:
+        one distance per DEM, or several distances for one DEM). Shapes that do not broadcast raise
+        :class:`InputError` naming ``distance``.
     table : EmissivityTable, optional
         Default: the embedded table.
     abundances : str, dict or AbundanceSet
@@ -297,7 +328,11 @@ def band_flux(dem, band, distance, table=None, abundances="coronal", density=Non
 
     Returns
     -------
-    Quantity, erg s-1 cm-2 (or ph s-1 cm-2), shape = DEM batch shape (+ (n_bands,) for several bands).
+    Quantity, erg s-1 cm-2 (or ph s-1 cm-2), shape = broadcast of the DEM batch shape and the distance's
+    shape (+ (n_bands,) for several bands).
+
+    A large batch is worked through in chunks that fit the memory budget (:mod:`synthcorona.memory`);
+    the numbers do not depend on the chunking.
     """
     if distance is None:
         raise InputError("distance is required for a flux; use luminosity() for the emitted power")
@@ -306,7 +341,10 @@ def band_flux(dem, band, distance, table=None, abundances="coronal", density=Non
 
 def luminosity(dem, band, table=None, abundances="coronal", density=None, pressure=None,
                photons: bool = False) -> u.Quantity:
-    """Band luminosity L = Σ_T EM(T) K_band(T) [erg s-1] (or ph s-1) of a volume DEM (into 4π)."""
+    """Band luminosity L = Σ_T EM(T) K_band(T) [erg s-1] (or ph s-1) of a volume DEM (into 4π).
+
+    Shape: the DEM batch shape (+ (n_bands,) for several bands); arguments as for :func:`band_flux`.
+    """
     return _band_quantity(dem, band, None, table, abundances, density, pressure, photons)
 
 
@@ -389,51 +427,10 @@ def _spectrum_attrs(prep: PreparedTable, q: u.Quantity, kind: str, photons: bool
     return attrs
 
 
-def synthesize(dem, wavelength=None, energy=None, table=None, abundances="coronal", density=None, pressure=None,
-               distance=None, photons: bool = False, thermal_broadening: bool = False, fwhm=None,
-               edges: bool = False) -> xr.DataArray:
-    """Spectrum of a DEM on a wavelength or energy grid, bin-integrated (flux conserved for any bin width).
-
-    Parameters
-    ----------
-    dem : synthcorona.dem.DEM
-        A single DEM (batch shape ()).
-    wavelength, energy : Quantity
-        Bin centres (or edges with ``edges=True``) in wavelength or energy units; give one.
-    table, abundances, density, pressure : see :func:`band_flux`.
-    distance : Quantity, optional
-        If given, flux at the observer; otherwise luminosity (volume DEM) or intensity (column DEM).
-    photons : bool
-        Photon units instead of energy units.
-    thermal_broadening : bool
-        Gaussian thermal Doppler profiles at each line's EM-weighted formation temperature.
-    fwhm : Quantity, optional
-        Gaussian instrumental FWHM in wavelength or energy units (same kind as the grid).
-
-    Returns
-    -------
-    xarray.DataArray
-        Spectral density per unit of the grid (per Angstrom or per keV), dims ("wavelength",)
-        or ("energy",); ``attrs`` give units, quantity, photons/energy, abundances, density,
-        table provenance.
-    """
-    if (wavelength is None) == (energy is None):
-        raise InputError("give exactly one of wavelength= or energy= (bin centres, or edges with edges=True)")
-    gname = "wavelength" if wavelength is not None else "energy"
-    graw = wavelength if wavelength is not None else energy
-    grid = SpectralGrid(gname, graw, edges=edges)
-    if wavelength is not None and not grid.wavelength_axis:
-        raise u.UnitsError(f"wavelength has units '{graw.unit}': expected a length (use energy= for energies)")
-    if energy is not None and grid.wavelength_axis:
-        raise u.UnitsError(f"energy has units '{graw.unit}': expected an energy (use wavelength= for wavelengths)")
-    prep = prepare(table, abundances, density, pressure)
-    w, em_unit = dem_weights(dem, prep)
-    if w.ndim != 1:
-        raise InputError(f"synthesize takes one DEM; got a batch of shape {w.shape[:-1]} (use band_flux for batches)")
+def _line_spectrum(prep: PreparedTable, grid: SpectralGrid, w: np.ndarray, photons: bool, thermal_broadening: bool,
+                   fwhm) -> np.ndarray:
+    """Line emission of one DEM (weights ``w``) in each bin of ``grid``, delta or Gaussian profiles."""
     e_lo, e_hi = grid.lo_hi_kev()
-    # continuum
-    spec_bins = prep.cont_integral_weighted(e_lo, e_hi, w, photons)  # per bin
-    # lines
     lines = prep.line_values(photons)  # (L, T)
     e_line = prep.line_energy_kev
     e_min, e_max = e_lo.min(), e_hi.max()
@@ -447,11 +444,69 @@ def synthesize(dem, wavelength=None, energy=None, table=None, abundances="corona
     else:
         centres = (e_line[sel] * u.keV).to_value(grid.unit)
     if not broaden:
-        line_bins = _unbroadened_line_bins(e_line[sel], amp, grid)
-    else:
-        sigma = line_sigma(prep, lines[sel], w, sel, centres, grid.unit, thermal_broadening, fwhm)
-        line_bins = _line_bin_contributions(centres, sigma, amp, grid.native_edges, grid.n)
-    spec_bins = spec_bins + line_bins
+        return _unbroadened_line_bins(e_line[sel], amp, grid)
+    sigma = line_sigma(prep, lines[sel], w, sel, centres, grid.unit, thermal_broadening, fwhm)
+    return _line_bin_contributions(centres, sigma, amp, grid.native_edges, grid.n)
+
+
+def synthesize(dem, wavelength=None, energy=None, table=None, abundances="coronal", density=None, pressure=None,
+               distance=None, photons: bool = False, thermal_broadening: bool = False, fwhm=None,
+               edges: bool = False) -> xr.DataArray:
+    """Spectrum of a DEM on a wavelength or energy grid, bin-integrated (flux conserved for any bin width).
+
+    Parameters
+    ----------
+    dem : synthcorona.dem.DEM
+        A single DEM (batch shape ()).
+    wavelength, energy : Quantity
+        Bin centres (or edges with ``edges=True``) in wavelength or energy units; give one.
+    table, abundances, density, pressure : see :func:`band_flux`.
+    distance : Quantity, optional
+        One distance (a scalar): flux at the observer; otherwise luminosity (volume DEM) or intensity
+        (column DEM).
+    photons : bool
+        Photon units instead of energy units.
+    thermal_broadening : bool
+        Gaussian thermal Doppler profiles at each line's EM-weighted formation temperature.
+    fwhm : Quantity, optional
+        Gaussian instrumental FWHM in wavelength or energy units (same kind as the grid).
+
+    Returns
+    -------
+    xarray.DataArray
+        Spectral density per unit of the grid (per Angstrom or per keV), dims ("wavelength",)
+        or ("energy",); ``attrs`` give units, quantity, photons/energy, abundances, density,
+        table provenance.
+
+    A batch of DEMs or an array of distances raises :class:`InputError` (use :func:`band_flux`);
+    a grid whose spectrum would need more memory than the budget (:func:`spectrum_nbytes`,
+    :mod:`synthcorona.memory`) raises :class:`~synthcorona.errors.MemoryBudgetError` before anything
+    is allocated.
+    """
+    if (wavelength is None) == (energy is None):
+        raise InputError("give exactly one of wavelength= or energy= (bin centres, or edges with edges=True)")
+    gname = "wavelength" if wavelength is not None else "energy"
+    graw = wavelength if wavelength is not None else energy
+    check_dem(dem)
+    if dem.batch_shape != ():
+        raise InputError(f"synthesize takes one DEM; got a batch of shape {dem.batch_shape} (use band_flux for "
+                         "batches)", argument="dem")
+    if distance is not None and np.ndim(distance) != 0:
+        raise InputError(f"distance has shape {np.shape(distance)}: synthesize takes one distance (use band_flux "
+                         "for several)", argument="distance")
+    prep = prepare(table, abundances, density, pressure)
+    n_bins = max(np.size(graw) - (1 if edges else 0), 0)
+    check_allocation(f"spectrum of {n_bins:,} bins", spectrum_nbytes(n_bins, prep), f"{gname} (fewer bins)")
+    grid = SpectralGrid(gname, graw, edges=edges)
+    if wavelength is not None and not grid.wavelength_axis:
+        raise u.UnitsError(f"wavelength has units '{graw.unit}': expected a length (use energy= for energies)")
+    if energy is not None and grid.wavelength_axis:
+        raise u.UnitsError(f"energy has units '{graw.unit}': expected an energy (use wavelength= for wavelengths)")
+    w, em_unit = dem_weights(dem, prep)
+    e_lo, e_hi = grid.lo_hi_kev()
+    # continuum
+    spec_bins = prep.cont_integral_weighted(e_lo, e_hi, w, photons)  # per bin
+    spec_bins = spec_bins + _line_spectrum(prep, grid, w, photons, thermal_broadening, fwhm)
     scale, extra_unit, kind = _output_scale(em_unit, distance)
     density_per_unit = spec_bins / grid.widths * scale
     base = (u.ph if photons else u.erg) / u.s

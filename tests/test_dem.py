@@ -447,3 +447,28 @@ def test_bad_tabulated_input(tmp_path):
 def test_modules_never_import_fiasco():
     code = "import synthcorona.dem, synthcorona.abundances, sys; assert 'fiasco' not in sys.modules"
     subprocess.run([sys.executable, "-c", code], check=True)
+
+
+def test_take_selects_members_of_the_flattened_batch():
+    # Reference: the rows of em_weights of the whole batch (C-order flattening), for every model.
+    x = np.linspace(5.0, 8.0, 61)
+    rng = np.random.default_rng(7)
+    gauss = GaussianDEM(rng.uniform(6.0, 7.0, (3, 4)), 0.2, 1e50 * u.cm**-3)
+    iso = IsothermalDEM(rng.uniform(2e6, 9e6, 5) * u.K, rng.uniform(1, 2, 5) * 1e50 * u.cm**-3)
+    power = PowerLawDEM(slope=rng.uniform(1, 3, (2, 3)), peak_temperature=3e6 * u.K, total_em=1e50 * u.cm**-3)
+    tab = TabulatedDEM(np.geomspace(1e6, 2e7, 9) * u.K, rng.uniform(0, 1, (4, 9)) * 1e44 * u.cm**-3 / u.K)
+    multi = MultiComponentDEM([GaussianDEM(rng.uniform(6.0, 7.0, (3, 1)), 0.2, 1e50 * u.cm**-3),
+                               IsothermalDEM(rng.uniform(2e6, 9e6, 4) * u.K, 1e50 * u.cm**-3), tab.scaled(np.ones(4))])
+    single = GaussianDEM(6.5, 0.3, 1e50 * u.cm**-3)
+    for dem in (gauss, iso, power, tab, multi, single):
+        whole = dem.em_weights(x).value.reshape(-1, x.size)
+        idx = np.array([whole.shape[0] - 1, 0, whole.shape[0] // 2, 0])
+        part = dem.take(idx)
+        assert part.batch_shape == (4,) and part.em_unit == dem.em_unit
+        np.testing.assert_array_equal(part.em_weights(x).value, whole[idx])
+        np.testing.assert_array_equal(part.total_em.value, np.broadcast_to(dem.total_em.value, dem.batch_shape or (1,))
+                                      .reshape(-1)[idx])
+    with pytest.raises(InputError, match=r"indices must lie in \[0, 12\)"):
+        gauss.take(np.array([12]))
+    with pytest.raises(InputError, match="1-D array of integers"):
+        gauss.take(np.array([0.5]))

@@ -209,3 +209,103 @@ def test_altered_numbers_fail_the_hash(table, tmp_path):
     ds.to_netcdf(out, engine="h5netcdf")
     with pytest.raises(sc.TableFileError, match="content-hash"):
         sc.load_emissivity(out)
+
+
+# ----------------------------------------------------------------------------- batches, distances, memory
+# Reference for every batch result below: a loop of scalar calls (one DEM, one distance) of the same function.
+SOFT = (0.1, 2.4) * u.keV
+
+
+def test_distance_broadcasts_against_the_dem_batch(table):
+    one = sc.GaussianDEM(6.5, 0.2, 1e51 * u.cm ** -3)
+    d = [5.0, 10.0] * u.pc
+    f = sc.band_flux(one, SOFT, distance=d, table=table)
+    loop = [sc.band_flux(one, SOFT, distance=x, table=table).value for x in d]
+    assert f.shape == (2,)
+    np.testing.assert_allclose(f.value, loop, rtol=1e-13)
+    assert f.value[0] / f.value[1] == pytest.approx(4.0, rel=1e-13)  # inverse square law
+    pair = sc.GaussianDEM([6.3, 6.8], 0.2, 1e51 * u.cm ** -3)
+    f = sc.band_flux(pair, SOFT, distance=d, table=table)
+    loop = [sc.band_flux(sc.GaussianDEM(mu, 0.2, 1e51 * u.cm ** -3), SOFT, distance=x, table=table).value
+            for mu, x in zip([6.3, 6.8], d)]
+    np.testing.assert_allclose(f.value, loop, rtol=1e-13)
+    # numpy rules: batch (2,) against distance (3, 1) -> (3, 2); several bands add a last axis
+    d31 = [[4.0], [8.0], [16.0]] * u.pc
+    bands = {"soft": SOFT, "hard": (2.0, 10.0) * u.keV}
+    f = sc.band_flux(pair, bands, distance=d31, table=table)
+    assert f.shape == (3, 2, 2)
+    for i, x in enumerate(d31[:, 0]):
+        for j, mu in enumerate([6.3, 6.8]):
+            ref = sc.band_flux(sc.GaussianDEM(mu, 0.2, 1e51 * u.cm ** -3), bands, distance=x, table=table)
+            np.testing.assert_allclose(f.value[i, j], ref.value, rtol=1e-13)
+    with pytest.raises(sc.InputError, match=r"distance has shape \(3,\).*batch shape \(2,\)") as err:
+        sc.band_flux(pair, SOFT, distance=[1, 2, 3] * u.pc, table=table)
+    assert err.value.argument == "distance"
+
+
+def test_synthesize_takes_one_dem_and_one_distance(table):
+    grid = np.linspace(10, 20, 50) * u.AA
+    one = sc.GaussianDEM(6.5, 0.2, 1e51 * u.cm ** -3)
+    with pytest.raises(sc.InputError, match=r"distance has shape \(2,\): synthesize takes one distance") as err:
+        sc.synthesize(one, wavelength=grid, table=table, distance=[5, 10] * u.pc)
+    assert err.value.argument == "distance"
+    with pytest.raises(sc.InputError, match=r"synthesize takes one DEM; got a batch of shape \(2,\)") as err:
+        sc.synthesize(sc.GaussianDEM([6.3, 6.8], 0.2, 1e51 * u.cm ** -3), wavelength=grid, table=table)
+    assert err.value.argument == "dem"
+
+
+def test_batches_in_chunks_equal_one_block(table, monkeypatch):
+    """A budget forced small through the setting splits the batch; the numbers stay identical."""
+    import synthcorona.batch as batch
+    from synthcorona.dem import MultiComponentDEM, TabulatedDEM
+    from synthcorona.settings import MEMORY_BUDGET_ENV
+
+    rng = np.random.default_rng(3)
+    n = 700
+    gauss = sc.GaussianDEM(rng.uniform(6.0, 7.0, n), rng.uniform(0.1, 0.3, n), rng.uniform(1e50, 1e51, n) * u.cm ** -3)
+    temp = np.geomspace(1e6, 2e7, 12) * u.K
+    tab = TabulatedDEM(temp, rng.uniform(0.0, 1.0, (n, 12)) * 1e44 * u.cm ** -3 / u.K)
+    multi = MultiComponentDEM([gauss, sc.IsothermalDEM(rng.uniform(2e6, 9e6, (3, 1)) * u.K, 5e50 * u.cm ** -3)])
+    d = rng.uniform(3.0, 30.0, n) * u.pc
+    monkeypatch.delenv(MEMORY_BUDGET_ENV, raising=False)
+    whole = {k: (sc.band_flux(dem, {"a": SOFT, "b": (150, 200) * u.AA}, distance=d, table=table),
+                 sc.luminosity(dem, SOFT, table=table)) for k, dem in (("g", gauss), ("t", tab), ("m", multi))}
+    steps = []
+    real_chunk_length = batch.chunk_length
+
+    def spy(*args, **kwargs):
+        steps.append(real_chunk_length(*args, **kwargs))
+        return steps[-1]
+
+    monkeypatch.setattr(batch, "chunk_length", spy)
+    monkeypatch.setenv(MEMORY_BUDGET_ENV, "1 MB")
+    for k, dem in (("g", gauss), ("t", tab), ("m", multi)):
+        f = sc.band_flux(dem, {"a": SOFT, "b": (150, 200) * u.AA}, distance=d, table=table)
+        lum = sc.luminosity(dem, SOFT, table=table)
+        np.testing.assert_array_equal(f.value, whole[k][0].value)
+        np.testing.assert_array_equal(lum.value, whole[k][1].value)
+    assert max(steps) < n and min(steps) >= 1          # the batches were split
+    # the result itself is checked too: (40, 700, 2) floats = 448 kB
+    monkeypatch.setenv(MEMORY_BUDGET_ENV, "100 kB")
+    with pytest.raises(sc.errors.MemoryBudgetError, match=r"band flux of shape \(40, 700, 2\) would need about "
+                                                          r"448 kB, more than the memory budget of 100 kB") as err:
+        sc.band_flux(gauss, {"a": SOFT, "b": (150, 200) * u.AA}, distance=np.ones((40, 1)) * d, table=table)
+    assert err.value.budget == 100_000 and err.value.estimate == 448_000 and err.value.argument == "dem"
+
+
+def test_spectrum_grid_checked_against_the_budget(table, monkeypatch):
+    from synthcorona.errors import MemoryBudgetError
+    from synthcorona.settings import MEMORY_BUDGET_ENV
+    from synthcorona.synthesis import spectrum_nbytes
+
+    one = sc.GaussianDEM(6.5, 0.2, 1e51 * u.cm ** -3)
+    grid = np.linspace(10, 20, 1000) * u.AA
+    need = spectrum_nbytes(1000, prepare(table))
+    monkeypatch.setenv(MEMORY_BUDGET_ENV, str(int(need)))
+    assert sc.synthesize(one, wavelength=grid, table=table).size == 1000
+    monkeypatch.setenv(MEMORY_BUDGET_ENV, str(int(need) - 1))
+    with pytest.raises(MemoryBudgetError, match=r"spectrum of 1,000 bins would need about .* change wavelength "
+                                                r"\(fewer bins\)") as err:
+        sc.synthesize(one, wavelength=grid, table=table)
+    assert err.value.estimate == int(need) and err.value.budget == int(need) - 1
+    assert err.value.argument == "wavelength"

@@ -18,6 +18,7 @@ __all__ = [
     "DEM", "ContinuousDEM", "as_emission_measure", "as_plain_array", "as_temperature", "check_logt_grid", "trailing",
     "exp_segment_integral", "fmt_value", "GaussianWork", "gaussian_cells", "LN10", "SQRT_HALF", "INV_SQRT_2PI",
     "VOLUME_EM_UNIT", "COLUMN_EM_UNIT", "OUTSIDE_TOLERANCE", "SNAP_TOLERANCE", "GAUSSIAN_BLOCK",
+    "EM_WEIGHTS_BYTES_PER_NODE",
 ]
 
 LN10 = math.log(10.0)
@@ -27,6 +28,10 @@ INV_SQRT_2PI = 1.0 / math.sqrt(2.0 * math.pi)
 OUTSIDE_TOLERANCE = 1e-6
 #: An isothermal log T within this fraction of a cell width of a node is put on the node.
 SNAP_TOLERANCE = 1e-6
+#: Work memory of :meth:`DEM.em_weights` per DEM and grid node, bytes: an upper estimate (tracemalloc peaks
+#: of the models on the embedded table's grid: 9 Gaussian or isothermal, 130 power law, 103 tabulated with 30
+#: table nodes, per DEM and grid node).
+EM_WEIGHTS_BYTES_PER_NODE = 160
 
 VOLUME_EM_UNIT = u.Unit("cm-3")
 COLUMN_EM_UNIT = u.Unit("cm-5")
@@ -260,6 +265,37 @@ class DEM:
         frac = self._node_fractions(x)
         frac *= self._em[..., None]
         return u.Quantity(frac, self._unit, copy=False)
+
+    def em_weights_nbytes(self, n_nodes: int) -> int:
+        """Work memory (bytes) of :meth:`em_weights` per DEM of the batch on a grid of ``n_nodes`` nodes
+        (an upper estimate, see :data:`EM_WEIGHTS_BYTES_PER_NODE`)."""
+        return EM_WEIGHTS_BYTES_PER_NODE * int(n_nodes)
+
+    # -- batches ----------------------------------------------------------------------
+    def take(self, indices) -> "DEM":
+        """The DEMs at positions ``indices`` of the batch flattened in C order, as a batch of shape ``(len(indices),)``.
+
+        ``indices`` is a 1-D array of integers in ``[0, prod(batch_shape))`` (a single DEM counts as a
+        batch of one). ``take(indices).em_weights(x)`` equals ``em_weights(x).reshape(-1, x.size)[indices]``;
+        the batch functions of :mod:`synthcorona.synthesis` use it to work through large batches in chunks.
+        """
+        idx = np.asarray(indices)
+        shape = self.batch_shape or (1,)
+        size = math.prod(shape)
+        if idx.ndim != 1 or not (idx.size == 0 or np.issubdtype(idx.dtype, np.integer)):
+            raise InputError(f"indices must be a 1-D array of integers; got {idx.dtype} of shape {idx.shape}",
+                             argument="indices")
+        if idx.size and (idx.min() < 0 or idx.max() >= size):
+            raise InputError(f"indices must lie in [0, {size}) for a batch of shape {self.batch_shape}; got "
+                             f"{idx.min()}-{idx.max()}", argument="indices")
+        return self._take_at(np.unravel_index(idx.astype(np.intp), shape), shape)
+
+    def _take_at(self, idx: tuple, shape: tuple) -> "DEM":
+        """A copy holding batch members ``idx`` (index arrays into ``shape``, a shape this batch broadcasts to)."""
+        new = copy.copy(self)
+        new._em = np.broadcast_to(self._em, shape)[idx]
+        new._params = {k: np.broadcast_to(v, shape)[idx] for k, v in self._params.items()}
+        return new
 
     # -- combination ------------------------------------------------------------------
     def scaled(self, factor) -> "DEM":

@@ -380,6 +380,16 @@ class MultiComponentDEM(DEM):
         """A copy with every component's EM multiplied by ``factor`` (finite, >= 0)."""
         return MultiComponentDEM([c.scaled(factor) for c in self._components])
 
+    def _take_at(self, idx, shape):
+        """Batch members ``idx`` of every component."""
+        new = super()._take_at(idx, shape)
+        new._components = tuple(c._take_at(idx, shape) for c in self._components)
+        return new
+
+    def em_weights_nbytes(self, n_nodes: int) -> int:
+        """Work memory of :meth:`em_weights` per DEM: the components' plus the running sum."""
+        return sum(c.em_weights_nbytes(n_nodes) for c in self._components) + 16 * int(n_nodes)
+
     def __repr__(self):
         """The components' reprs."""
         return f"MultiComponentDEM([{', '.join(repr(c) for c in self._components)}])"

@@ -11,6 +11,7 @@ from ..errors import InputError
 from ..validation import as_quantity, check_finite, check_range
 from .base import (
     COLUMN_EM_UNIT,
+    EM_WEIGHTS_BYTES_PER_NODE,
     LN10,
     VOLUME_EM_UNIT,
     ContinuousDEM,
@@ -154,6 +155,16 @@ class TabulatedDEM(ContinuousDEM):
     def _rebroadcast(self, shape):
         """Broadcast the normalised log density table to a new batch shape."""
         self._lnf = np.broadcast_to(self._lnf, tuple(shape) + (self._xt.size,))
+
+    def _take_at(self, idx, shape):
+        """Batch members ``idx`` with their rows of the normalised log density table."""
+        new = super()._take_at(idx, shape)
+        new._lnf = np.broadcast_to(self._lnf, tuple(shape) + (self._xt.size,))[idx]
+        return new
+
+    def em_weights_nbytes(self, n_nodes: int) -> int:
+        """Work memory of :meth:`em_weights` per DEM: the cell integrals run over table and grid nodes together."""
+        return EM_WEIGHTS_BYTES_PER_NODE * (int(n_nodes) + self._xt.size)
 
     def _log_density_at(self, x):
         """ln(dEM/dlog10T per unit EM) at log10 T values ``x`` (any shape): batch + x.shape."""

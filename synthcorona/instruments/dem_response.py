@@ -30,10 +30,11 @@ import astropy.units as u
 import numpy as np
 import xarray as xr
 
+from ..batch import broadcast_batch, fold
 from ..constants import PARSEC_CM
 from ..errors import InputError
 from ..spectral import Band, SpectralGrid
-from ..synthesis import dem_weights, prepare
+from ..synthesis import check_dem, prepare
 from ..validation import as_quantity, check_finite
 from .binning import EDGE_RTOL, fmt_kev
 from .instrument import COUNT_RATE_UNIT
@@ -44,7 +45,9 @@ from .observables import (
     ism_attrs,
     ism_key,
     ism_range_kev,
+    nh_kernels,
     nh_value,
+    nh_values,
     refine_edges,
 )
 
@@ -296,13 +299,13 @@ def temperature_response(instrument, table=None, abundances="coronal", density=N
 
 
 # ----------------------------------------------------------------------------- count rates
-def _geometry(em_unit, distance, solid_angle, batch):
-    """Scale from temperature response to count rate (batch shape), and the geometry attrs."""
+def _geometry(em_unit, distance, solid_angle):
+    """Scale from temperature response to count rate (an array of the distance's shape), and the geometry attrs."""
     if em_unit.is_equivalent(u.cm**-3):
         if solid_angle is not None:
             raise InputError("solid_angle applies to a column DEM (cm^-5); this DEM is a volume DEM (cm^-3): "
-                             "give distance= instead")
-        scale = (REFERENCE_DISTANCE_CM / distance_cm(distance, batch)) ** 2
+                             "give distance= instead", argument="solid_angle")
+        scale = (REFERENCE_DISTANCE_CM / distance_cm(distance)) ** 2
         return scale, {"distance_pc": np.asarray(as_quantity("distance", distance, u.pc).value).tolist()}
     if distance is not None:
         raise InputError("distance is meaningless for a column DEM (cm^-5), which gives an intensity; "
@@ -314,19 +317,35 @@ def _geometry(em_unit, distance, solid_angle, batch):
     check_finite("solid_angle", om)
     if np.ndim(om) != 0 or not om.value > 0:
         raise InputError(f"solid_angle={solid_angle} must be a single value > 0 sr (valid range (0, 4 pi] sr)")
-    return np.full(batch, REFERENCE_DISTANCE_CM**2 * float(om.value)), {"solid_angle_sr": float(om.value)}
+    return np.asarray(REFERENCE_DISTANCE_CM**2 * float(om.value)), {"solid_angle_sr": float(om.value)}
 
 
 def _count_rate_values(instrument, dem, distance, nh, band, table, abundances, density, pressure, ism_abundances,
                        solid_angle):
-    """Count rates (batch + (n_bands,)) in counts s^-1, the band list, and attrs pieces."""
-    nhv = nh_value(nh)
+    """Count rates (shape + (n_bands,)) in counts s^-1, the band list, and attrs pieces.
+
+    ``shape`` is the broadcast of the DEM batch, the distance and ``nh``; one temperature response per
+    distinct column of ``nh``.
+    """
     prep = prepare(table, abundances, density, pressure)
-    w, em_unit = dem_weights(dem, prep)
+    em_unit = check_dem(dem)
     blist = response_bands(instrument, band)
-    scale, geometry = _geometry(em_unit, distance, solid_angle, w.shape[:-1])
-    K, grid_desc, edges = _response_kernel(instrument, prep, blist, nhv, ism_abundances, None)
-    vals = (w @ K.T) * scale[..., None]
+    scale, geometry = _geometry(em_unit, distance, solid_angle)
+    grids = {}
+
+    def kernel(col):
+        K, grid_desc, edges = _response_kernel(instrument, prep, blist, col, ism_abundances, None)
+        grids[col or 0.0] = (grid_desc, edges)
+        return K
+
+    kernels, select, nh_shape = nh_kernels(nh, kernel)
+    shape = broadcast_batch(dem.batch_shape, distance=scale.shape, nh=nh_shape)
+    vals = fold(dem, prep, kernels, select=select, shape=shape, name="count rates",
+                what_to_change="dem (a smaller batch), distance or nh")
+    vals = vals * scale[..., None]
+    grid_desc, edges = grids[max(grids)]            # the finest grid (split for the largest column)
+    nhv = nh_values(nh)
+    nhv = float(nhv) if nhv is not None and nhv.ndim == 0 else nhv
     return vals, blist, (prep, nhv, grid_desc, edges, geometry)
 
 
@@ -341,9 +360,10 @@ def count_rate(instrument, dem, distance=None, nh=None, band=None, table=None, a
         ``dem.em_weights(table.logT)`` has shape batch + (n_T,). A volume DEM (cm^-3) needs
         ``distance``; a column DEM (cm^-5) needs ``solid_angle`` instead.
     distance : Quantity [length]
-        Distance of the star, > 0; broadcast against the DEM batch shape.
+        Distance of the star, > 0; an array broadcasts against the DEM batch shape (numpy rules).
     nh : Quantity [cm^-2], optional
-        Interstellar hydrogen column, [0, 1e24] cm^-2.
+        Interstellar hydrogen column, [0, 1e24] cm^-2; an array broadcasts against the DEM batch
+        and the distance (one temperature response per distinct column).
     band : None, str, Band, Quantity pair, or list/dict of these
         None: all named bands (or "total"), result has a last axis of bands in definition
         order. A single band name or (lo, hi) Quantity: no band axis. A list or dict: a
@@ -357,13 +377,15 @@ def count_rate(instrument, dem, distance=None, nh=None, band=None, table=None, a
     Returns
     -------
     Quantity
-        In counts s^-1, shape batch (+ (n_bands,)). See :func:`count_rates` for the
-        same numbers as a labelled xarray.DataArray with provenance.
+        In counts s^-1, shape = broadcast of the DEM batch, distance and nh shapes (+ (n_bands,)).
+        Shapes that do not broadcast raise :class:`InputError` naming the argument. See
+        :func:`count_rates` for the same numbers as a labelled xarray.DataArray with provenance.
 
     Method
     ------
     ``rate = w @ K^T (1 pc / d)^2`` with ``w`` the EM weights of the DEM on the table grid
-    and ``K`` from :func:`temperature_response` (one matrix product for the whole batch).
+    and ``K`` from :func:`temperature_response` (:func:`synthcorona.batch.fold`: chunks of the batch
+    that fit the memory budget).
     For a column DEM, ``rate = w @ (S @ eps)^T / (4 pi sr) * Omega``.
     """
     vals, blist, _ = _count_rate_values(instrument, dem, distance, nh, band, table, abundances, density, pressure,
@@ -378,8 +400,8 @@ def count_rates(instrument, dem, distance=None, nh=None, band=None, table=None, 
                 pressure=None, ism_abundances="photospheric", solid_angle=None) -> xr.DataArray:
     """Count rates per band as an xarray.DataArray with units and provenance.
 
-    Same arguments and numbers as :func:`count_rate`; dims are the DEM batch dims
-    ("dem" for a 1-D batch, "dem_0", "dem_1", ... otherwise; none for one DEM) followed
+    Same arguments and numbers as :func:`count_rate`; dims are the batch dims (of the DEM batch
+    broadcast with distance and nh: "dem" for 1-D, "dem_0", "dem_1", ... otherwise; none for one value) followed
     by "band" (always present). ``attrs`` give units (counts s^-1), distance or solid
     angle, absorption, abundances (including which elements were taken as zero),
     density model, table and instrument provenance.

@@ -1,6 +1,8 @@
 """Observables of a corona seen through an instrument and the interstellar medium.
 
-Functions here (all vectorised over batches of DEMs and over the table temperatures):
+Functions here (all vectorised over batches of DEMs and over the table temperatures; the distance
+and the interstellar column broadcast against the DEM batch with numpy's rules, and large batches
+are worked through in chunks that fit the memory budget, see :mod:`synthcorona.batch`):
 
 * :func:`observed_flux` -- energy (or photon) flux at the observer in an energy band,
   with optional interstellar absorption;
@@ -40,15 +42,16 @@ import xarray as xr
 
 from ..absorption import ISM_ENERGY_MAX, ISM_ENERGY_MIN, NH_MAX, ism_cross_section, ism_transmission
 from ..abundances import resolve_abundances
+from ..batch import broadcast_batch, fold
 from ..constants import HC_KEV_ANGSTROM, KEV_TO_ERG, PARSEC_CM
 from ..errors import InputError
 from ..spectral import Band
-from ..synthesis import band_list, dem_weights, luminosity, prepare
+from ..synthesis import band_list, check_dem, luminosity, prepare
 from ..validation import as_quantity, check_range
 
 __all__ = [
     "ABSORPTION_MAX_REL_WIDTH", "REFERENCE_DISTANCE", "FOUR_PI_PC2", "binned_emissivity", "absorbed_band_kernel",
-    "nh_value", "distance_cm", "observed_flux", "band_luminosity", "hardness_ratio", "hardness_ratio_curve",
+    "nh_value", "nh_values", "nh_kernels", "distance_cm", "observed_flux", "band_luminosity", "hardness_ratio", "hardness_ratio_curve",
     "counts_to_flux",
 ]
 
@@ -78,6 +81,30 @@ def nh_value(nh) -> float | None:
     return float(col.value)
 
 
+def nh_values(nh) -> np.ndarray | None:
+    """Validate interstellar columns: a Quantity (any shape) in [0, 1e24] cm^-2 -> float array (None stays None)."""
+    if nh is None:
+        return None
+    col = as_quantity("nh", nh, u.cm**-2)
+    values = np.asarray(col.value, dtype=float)
+    check_range("nh", values, lo=0.0, hi=NH_MAX.to_value(u.cm**-2), unit_label="cm^-2")
+    return values
+
+
+def nh_kernels(nh, kernel) -> tuple[np.ndarray, np.ndarray | None, tuple]:
+    """The kernels of every distinct interstellar column in ``nh`` (validated by :func:`nh_values`).
+
+    ``kernel(nh_float_or_None)`` returns the (n_b, n_T) kernel for one column. Returns the stack
+    (n_k, n_b, n_T), the index of the kernel for each element of ``nh`` (None when ``nh`` is None)
+    and the shape of ``nh``, for :func:`synthcorona.batch.fold`. Each distinct column is computed once.
+    """
+    cols = nh_values(nh)
+    if cols is None:
+        return np.asarray(kernel(None))[None], None, ()
+    distinct, index = np.unique(cols, return_inverse=True)
+    return np.stack([np.asarray(kernel(float(v))) for v in distinct]), index.reshape(cols.shape), cols.shape
+
+
 def ism_key(ism_abundances) -> tuple:
     """Hashable key of an ISM abundance specification (resolved values)."""
     ab = resolve_abundances(ism_abundances)
@@ -89,16 +116,23 @@ def ism_range_kev() -> tuple[float, float]:
     return float(ISM_ENERGY_MIN.to_value(u.keV)), float(ISM_ENERGY_MAX.to_value(u.keV))
 
 
-def ism_attrs(nh: float | None, ism_abundances) -> dict:
-    """Attributes describing the interstellar absorption applied (or not)."""
+def ism_attrs(nh, ism_abundances) -> dict:
+    """Attributes describing the interstellar absorption applied (or not); ``nh`` in cm^-2: None, a float, or
+    an array (one column per result element, recorded as a JSON list)."""
     if nh is None:
         return {"ism_absorption": "none"}
     ab = resolve_abundances(ism_abundances)
+    cols = np.asarray(nh, dtype=float)
+    if cols.ndim:
+        text = f"N_H = {cols.min():.4g}-{cols.max():.4g} cm-2 (one column per result element)"
+        value = json.dumps(cols.tolist())
+    else:
+        text, value = f"N_H = {float(cols):.4g} cm-2", float(cols)
     return {
-        "ism_absorption": (f"N_H = {nh:.4g} cm-2, photoelectric absorption of neutral gas "
+        "ism_absorption": (f"{text}, photoelectric absorption of neutral gas "
                            "(synthcorona.absorption.ism_transmission: Verner et al. 1996, ApJ 465, 487; "
                            "Chantler 2000, JPCRD 29, 597)"),
-        "ism_nh_cm-2": nh,
+        "ism_nh_cm-2": value,
         "ism_abundances": ab.name,
     }
 
@@ -294,10 +328,11 @@ def observed_flux(dem, band, distance, nh=None, table=None, abundances="coronal"
         energies or wavelengths, lower limit first in the unit given); an (n, 2) Quantity, a list
         of Bands or texts, or a dict label -> band for several.
     distance : Quantity [length]
-        Distance of the star (> 0); broadcast against the DEM batch shape.
+        Distance of the star (> 0); an array broadcasts against the DEM batch shape (numpy rules).
     nh : Quantity [cm^-2], optional
-        Interstellar hydrogen column, [0, 1e24] cm^-2. None: no absorption (then the result
-        equals :func:`synthcorona.synthesis.band_flux`). Requires the band inside 10 eV-10 keV.
+        Interstellar hydrogen column, [0, 1e24] cm^-2; an array broadcasts against the DEM batch
+        and the distance. None: no absorption (then the result equals
+        :func:`synthcorona.synthesis.band_flux`). Requires the band inside 10 eV-10 keV.
     table, abundances, density, pressure
         As for :func:`synthcorona.synthesis.band_flux`.
     ism_abundances : str or dict
@@ -307,17 +342,21 @@ def observed_flux(dem, band, distance, nh=None, table=None, abundances="coronal"
 
     Returns
     -------
-    Quantity, shape = DEM batch shape (+ (n_bands,) for several bands).
+    Quantity, shape = broadcast of the DEM batch, distance and nh shapes (+ (n_bands,) for several
+    bands). Shapes that do not broadcast raise :class:`InputError` naming the argument.
     """
-    nhv = nh_value(nh)
     prep = prepare(table, abundances, density, pressure)
-    w, em_unit = dem_weights(dem, prep)
+    em_unit = check_dem(dem)
     if not em_unit.is_equivalent(u.cm**-3):
-        raise InputError(f"dem has units {em_unit}: observed_flux needs a volume DEM (cm^-3)")
-    d = distance_cm(distance, w.shape[:-1])
+        raise InputError(f"dem has units {em_unit}: observed_flux needs a volume DEM (cm^-3)", argument="dem")
+    d = distance_cm(distance)
     bands, _, single = _energy_bands(band)
-    k = absorbed_band_kernel(bands, prep, nhv, ism_abundances, photons=photons)   # (n_b, T)
-    vals = (w @ k.T) / (4.0 * np.pi * d[..., None] ** 2)
+    kernels, select, nh_shape = nh_kernels(
+        nh, lambda col: absorbed_band_kernel(bands, prep, col, ism_abundances, photons=photons))  # (n_k, n_b, T)
+    shape = broadcast_batch(dem.batch_shape, distance=d.shape, nh=nh_shape)
+    vals = fold(dem, prep, kernels, select=select, shape=shape, name="observed fluxes",
+                what_to_change="dem (a smaller batch), distance or nh")
+    vals = vals / (4.0 * np.pi * d[..., None] ** 2)
     unit = (u.ph if photons else u.erg) / (u.s * u.cm**2)
     q = u.Quantity(vals, unit)
     return q[..., 0] if single else q
@@ -334,20 +373,18 @@ def band_luminosity(dem, band, table=None, abundances="coronal", density=None, p
                       photons=photons)
 
 
-def distance_cm(distance, batch_shape) -> np.ndarray:
-    """Validated distance (a length Quantity > 0) in cm as floats, broadcast to the DEM batch shape.
+def distance_cm(distance) -> np.ndarray:
+    """Validated distance (a length Quantity > 0, any shape) in cm as floats.
 
-    Raises :class:`InputError` naming ``distance`` if it is missing, not > 0, or does not broadcast.
+    Raises :class:`InputError` naming ``distance`` if it is missing or not > 0; its broadcasting
+    against a DEM batch is checked by :func:`synthcorona.batch.broadcast_batch`.
     """
     if distance is None:
-        raise InputError("distance is required for a volume DEM (cm^-3): give e.g. distance=10 * u.pc")
+        raise InputError("distance is required for a volume DEM (cm^-3): give e.g. distance=10 * u.pc",
+                         argument="distance")
     d = as_quantity("distance", distance, u.cm)
     check_range("distance", d.to_value(u.pc), lo=0.0, hi=None, unit_label="pc", inclusive=False)
-    try:
-        return np.broadcast_to(np.asarray(d.value, dtype=float), batch_shape)
-    except ValueError:
-        raise InputError(f"distance has shape {np.shape(d)}, which does not broadcast against the DEM batch "
-                         f"shape {batch_shape}") from None
+    return np.asarray(d.value, dtype=float)
 
 
 def hardness_ratio(instrument, dem, hard="hard", soft="soft", nh=None, table=None, abundances="coronal",
@@ -469,8 +506,9 @@ def counts_to_flux(instrument, band=None, flux_band=None, nh=None, absorbed: boo
         attrs["plasma"] = "isothermal at each table temperature"
         return xr.DataArray(c, dims=("logT",), coords={"logT": resp.logT.values}, attrs=attrs,
                             name="counts_to_flux")
-    w, _ = dem_weights(dem, prep)
-    f, r = w @ kf, w @ kr
+    check_dem(dem)
+    fr = fold(dem, prep, np.stack([kf, kr]), name="counts-to-flux factors", what_to_change="dem (a smaller batch)")
+    f, r = fr[..., 0], fr[..., 1]
     with np.errstate(invalid="ignore", divide="ignore"):
         c = np.where(r > 0, f / r, np.nan)
     dims = ("dem",) if c.ndim == 1 else tuple(f"dem_{i}" for i in range(c.ndim))

@@ -96,7 +96,7 @@ def _phase_value(p: Section):
 
 
 def _phases(root: Section) -> list:
-    from ..products.cycle_phase import CyclePhase
+    from ..products.cycle_phase import CyclePhase, coincident_phases
 
     secs = root.sections("phase", required=True)
     if len(secs) < 2:
@@ -130,7 +130,19 @@ def _phases(root: Section) -> list:
                               width_dex=width)
         p.finish()
         out.append(phase_obj)
+    same = coincident_phases(out)
+    if same is not None:
+        (i, a), (j, b) = ((k, out[k]) for k in same)
+        raise ScenarioError(f"{root.file}: [[phase]]: phases '{a.label}' ([{secs[i].path}]) and '{b.label}' "
+                            f"([{secs[j].path}]) are at the same time (phase = {_phase_text(secs[i])} and "
+                            f"{_phase_text(secs[j])}); every phase needs its own time", argument="phase")
     return out
+
+
+def _phase_text(p: Section) -> str:
+    """The ``phase`` key of a [[phase]] table as written in the file."""
+    v = p.data.get("phase")
+    return f'"{v}"' if isinstance(v, str) else f"{v!r}"
 
 
 def _abs_spec(spec: str, file: str) -> str:
@@ -204,15 +216,17 @@ def _reference(root: Section):
     return read_forecast_file(path, build=False), str(path)
 
 
-def read_cycle_file(path_or_text, *, name: str | None = None) -> CycleInputs:
-    """Read a cycle file (TOML path or text) into :class:`CycleInputs`; keys in ``docs/cycle_reference.md``.
+def read_cycle_file(path=None, *, text: str | None = None, name: str | None = None) -> CycleInputs:
+    """Read a cycle file into :class:`CycleInputs`; keys in ``docs/cycle_reference.md``.
 
-    Every mistake raises :class:`~synthcorona.errors.ScenarioError` naming the file and the key.
+    ``path`` is always a file path (UTF-8 text); TOML text is read with ``text=`` (``name`` names it in
+    messages; relative paths in it are taken relative to ``name``'s folder). Every mistake raises
+    :class:`~synthcorona.errors.ScenarioError` naming the file and the key.
     """
     from ..dimming.sizes import MIN_EXCEEDANCES, minimum_realisations
 
-    root = load_toml(path_or_text, name=name)
-    is_file = root.file != "<string>" and pathlib.Path(root.file).is_file()
+    root = load_toml(path, text=text, name=name)
+    is_file = path is not None
     title = root.string("title", default=pathlib.Path(root.file).stem if is_file else "activity cycle")
     period = root.quantity("period", u.yr, default=None, lo=0.0, lo_inclusive=False, hi=1e4)
     reference, ref_path = _reference(root)

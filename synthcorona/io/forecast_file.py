@@ -25,7 +25,7 @@ import numpy as np
 
 from ..dimming.flare_energy import FLARE_CLASS_FLUX, flare_energy_from_class
 from ..errors import InputError, ScenarioError
-from .toml import Section, abundances_from_key, dem_from_section, load_toml
+from .toml import Section, abundances_from_key, dem_from_section, load_toml, read_input_text
 
 __all__ = ["ForecastInputs", "MonteCarlo", "InstrumentEntry", "read_forecast_file", "flare_energy_from_class",
            "FLARE_CLASS_FLUX", "STATISTICS"]
@@ -429,8 +429,10 @@ def _output(root: Section):
     return out
 
 
-def read_forecast_file(path_or_text, *, name: str | None = None, build: bool = True, table=None) -> ForecastInputs:
-    """Read a forecast scenario (TOML file path, or TOML text) into :class:`ForecastInputs`.
+def read_forecast_file(path=None, *, text: str | None = None, name: str | None = None, build: bool = True,
+                       table=None) -> ForecastInputs:
+    """Read a forecast scenario file (``path``, always a file path, UTF-8 text), or TOML text given as ``text=``,
+    into :class:`ForecastInputs` (``name`` names the text in messages).
 
     Builds the :class:`~synthcorona.dimming.scenario.DimmingScenario` on the emissivity ``table``
     (an EmissivityTable or a path; default: see :func:`synthcorona.emissivity.resolve_table`) with
@@ -439,9 +441,14 @@ def read_forecast_file(path_or_text, *, name: str | None = None, build: bool = T
     Every mistake raises :class:`ScenarioError` naming the file and the key. Keys:
     ``docs/scenario_reference.md``.
     """
-    root = load_toml(path_or_text, name=name)
-    is_file = root.file not in ("<string>",) and pathlib.Path(root.file).is_file()
-    text = pathlib.Path(root.file).read_text(encoding="utf-8") if is_file else str(path_or_text)
+    is_file = text is None
+    if is_file:
+        if path is None:
+            raise InputError("read_forecast_file: give a file path, or TOML text as text=", argument="path")
+        text = read_input_text(path)
+    elif path is not None:
+        raise InputError("read_forecast_file: give a file path or text=, not both", argument="path")
+    root = load_toml(text=text, name=name or (str(path) if is_file else None))
     sc = root.section("scenario")
     if sc is None:
         sc = Section({}, "scenario", root.file)

@@ -9,7 +9,14 @@ most half a packing step, recorded per variable in ``attrs["storage_error"]``.
 
 The content hash is the SHA-256 of the raw stored integers, the packing constants
 and the coordinate/float variables, so a file whose numbers were altered, or that
-was truncated, fails verification on load.
+was truncated, fails verification on load. The attributes that decode the packed
+arrays (:data:`DECODING_ATTRS`: packing constants and delta-encoding axes) are
+recorded separately, one SHA-256 per variable and attribute, in the global
+attribute ``decoding_hash`` (:func:`decoding_hash`); an edited, added or deleted
+decoding attribute fails verification with an error naming it. Tables written
+before ``decoding_hash`` existed are checked against the layout this format always
+writes (:func:`check_decoding_attrs`) and can be given the record in place with
+:func:`record_decoding_hash`.
 """
 from __future__ import annotations
 
@@ -22,7 +29,8 @@ import xarray as xr
 
 from ..errors import TableFileError
 
-__all__ = ["PACKED_VARS", "write_table", "read_table", "content_hash"]
+__all__ = ["PACKED_VARS", "DECODING_ATTRS", "write_table", "read_table", "content_hash", "decoding_hash",
+           "check_decoding_attrs", "record_decoding_hash", "verify_table"]
 
 #: Variables stored as packed log10 integers.
 PACKED_VARS = ("line_emissivity", "cont_ff", "cont_fb", "cont_2p")
@@ -31,7 +39,10 @@ QMAX = 32767
 #: Values below this fraction of a variable's maximum are stored as zero.
 RELATIVE_FLOOR = 1e-40
 FORMAT_VERSION = "synthcorona-emissivity-1"
-
+#: Attributes of the packed variables that change how their stored integers decode.
+DECODING_ATTRS = ("pack_scale", "pack_offset", "delta_axes")
+#: Marks an absent decoding attribute in :func:`decoding_hash`.
+_ABSENT = "<absent>"
 
 
 def _pack(values: np.ndarray) -> tuple[np.ndarray, float, float, float]:
@@ -125,6 +136,109 @@ def content_hash(ds: xr.Dataset) -> str:
     return h.hexdigest()
 
 
+def _attr_text(value) -> str:
+    """A decoding attribute's value as text: floats by ``repr`` (every bit), anything else by ``str``."""
+    if value is None:
+        return _ABSENT
+    if isinstance(value, (float, np.floating)):
+        return repr(float(value))
+    if isinstance(value, np.ndarray) and value.size == 1 and value.dtype.kind == "f":
+        return repr(float(value.reshape(-1)[0]))
+    if isinstance(value, bytes):
+        return value.decode("utf-8", "replace")
+    return str(value)
+
+
+def decoding_hash(ds: xr.Dataset) -> str:
+    """JSON of ``{"variable/attribute": SHA-256}`` over every decoding attribute (:data:`DECODING_ATTRS`)
+    of every packed variable (:data:`PACKED_VARS`); an absent attribute is hashed as absent."""
+    out = {}
+    for name in PACKED_VARS:
+        if name not in ds:
+            continue
+        for key in DECODING_ATTRS:
+            text = f"{name}/{key}={_attr_text(ds[name].attrs.get(key))}"
+            out[f"{name}/{key}"] = hashlib.sha256(text.encode()).hexdigest()
+    return json.dumps(out, sort_keys=True)
+
+
+def _layout_axes(ndim: int) -> str:
+    """The ``delta_axes`` this format writes for an ``ndim``-dimensional packed variable."""
+    return " ".join(str(a) for a in range(ndim - 1, 0, -1))
+
+
+def check_decoding_attrs(ds: xr.Dataset, path) -> None:
+    """Verify the decoding attributes of the packed variables of a table read from ``path``.
+
+    With a recorded ``decoding_hash`` every attribute of :data:`DECODING_ATTRS` must match its
+    record; without one (tables written before it existed) ``delta_axes`` must be the layout this
+    format writes and the packing constants must be present (their values are in the content hash).
+    Raises :class:`TableFileError` naming the variable and the attribute.
+    """
+    recorded = ds.attrs.get("decoding_hash")
+    if recorded is None:
+        for name in PACKED_VARS:
+            attrs = ds[name].attrs
+            for key in DECODING_ATTRS:
+                if key not in attrs:
+                    raise TableFileError(f"emissivity table {path}: variable {name!r} lacks its decoding attribute "
+                                         f"{key!r}; the file was altered or damaged",
+                                         path=path, variable=name, attribute=key)
+            want = _layout_axes(ds[name].ndim)
+            if _attr_text(attrs["delta_axes"]).split() != want.split():
+                raise TableFileError(f"emissivity table {path}: attribute 'delta_axes' of {name!r} is "
+                                     f"{_attr_text(attrs['delta_axes'])!r}, but this format writes {want!r}; the "
+                                     "file was altered and its numbers would decode wrongly",
+                                     path=path, variable=name, attribute="delta_axes")
+        return
+    try:
+        want = json.loads(_attr_text(recorded))
+        if not isinstance(want, dict):
+            raise ValueError("not a JSON object")
+    except ValueError as exc:
+        raise TableFileError(f"emissivity table {path}: its decoding_hash attribute is not readable ({exc}); the file "
+                             "was altered or damaged", path=path, attribute="decoding_hash") from None
+    got = json.loads(decoding_hash(ds))
+    for key in sorted(set(want) | set(got)):
+        if want.get(key) != got.get(key):
+            name, _, attr = key.partition("/")
+            value = _attr_text(ds[name].attrs.get(attr)) if name in ds else _ABSENT
+            raise TableFileError(f"emissivity table {path}: attribute {attr!r} of variable {name!r} (now {value!r}) "
+                                 "differs from the value recorded when the table was written (decoding_hash); the "
+                                 "file was altered and its numbers would decode wrongly",
+                                 path=path, variable=name, attribute=attr)
+
+
+def verify_table(ds: xr.Dataset, path) -> None:
+    """The checks of :func:`read_table` on a dataset read raw from ``path``: the decoding attributes
+    (:func:`check_decoding_attrs`), then the content hash. Raises :class:`TableFileError`."""
+    check_decoding_attrs(ds, path)
+    got = content_hash(ds)
+    if got != ds.attrs.get("content_hash"):
+        raise TableFileError(f"emissivity table {path} fails its content-hash check (stored "
+                             f"{ds.attrs.get('content_hash')}, computed {got}): the file was altered or damaged",
+                             path=path, attribute="content_hash")
+
+
+def record_decoding_hash(path) -> pathlib.Path:
+    """Add the ``decoding_hash`` attribute to a table file written before it existed, in place.
+
+    The file is verified first (:func:`read_table`: content hash, and the layout of the decoding
+    attributes), so an altered table is refused rather than recorded; only the one global attribute
+    is written (with h5py), the stored arrays are untouched. A file that already has the record
+    is left as it is. Returns the path.
+    """
+    import h5py
+
+    path = pathlib.Path(path)
+    ds = read_table(path, verify=True, lazy=PACKED_VARS)
+    if "decoding_hash" not in ds.attrs:
+        record = decoding_hash(_open_raw(path))
+        with h5py.File(path, "r+") as f:
+            f.attrs["decoding_hash"] = record
+    return path
+
+
 def write_table(output, results: dict, settings, elements: list[str], attrs: dict) -> pathlib.Path:
     """Assemble per-ion results into the table file (see module doc). Returns the path written."""
     output = pathlib.Path(output)
@@ -192,6 +306,7 @@ def write_table(output, results: dict, settings, elements: list[str], attrs: dic
     ds.attrs["storage_error"] = json.dumps({k: f"max relative decode error {v:.2e}" for k, v in errors.items()}
                                            | {"floor": f"values below {RELATIVE_FLOOR:g} x variable maximum stored as 0"})
     ds.attrs["content_hash"] = content_hash(ds)
+    ds.attrs["decoding_hash"] = decoding_hash(ds)
     enc = {v: {"zlib": True, "complevel": 6, "shuffle": True} for v in ds.data_vars}
     for v in PACKED_VARS:
         enc[v]["chunksizes"] = chunks[v]
@@ -202,6 +317,18 @@ def write_table(output, results: dict, settings, elements: list[str], attrs: dic
     return output
 
 
+def _open_raw(path: pathlib.Path) -> xr.Dataset:
+    """The file's variables as stored (no CF decoding), loaded; :class:`TableFileError` if it cannot be read."""
+    if not path.is_file():
+        raise TableFileError(f"emissivity table {path}: no such file", path=path)
+    try:
+        with xr.open_dataset(path, engine="h5netcdf", mask_and_scale=False, decode_cf=False) as ds:
+            return ds.load()
+    except Exception as exc:  # h5py/netCDF errors vary: report them all as a bad file
+        raise TableFileError(f"emissivity table {path} cannot be read ({type(exc).__name__}: {exc}); "
+                             "the file is corrupted or not a netCDF/HDF5 file", path=path) from None
+
+
 def read_table(path, verify: bool = True, lazy: tuple = ()) -> xr.Dataset:
     """Read a table file, verify its content hash, and decode packed arrays to float.
 
@@ -209,27 +336,20 @@ def read_table(path, verify: bool = True, lazy: tuple = ()) -> xr.Dataset:
     their ``pack_scale``/``pack_offset`` attributes; decode them with :func:`decode`.
 
     Raises :class:`TableFileError` naming the file if it is missing, unreadable,
-    not a synthcorona table, or fails the hash check.
+    not a synthcorona table, or fails verification (:func:`verify_table`: a decoding
+    attribute that differs from its record, named; or the content hash).
     """
     path = pathlib.Path(path)
-    if not path.is_file():
-        raise TableFileError(f"emissivity table {path}: no such file")
-    try:
-        ds = xr.open_dataset(path, engine="h5netcdf", mask_and_scale=False, decode_cf=False).load()
-    except Exception as exc:  # h5py/netCDF errors vary: report them all as a bad file
-        raise TableFileError(f"emissivity table {path} cannot be read ({type(exc).__name__}: {exc}); "
-                             "the file is corrupted or not a netCDF/HDF5 file") from None
+    ds = _open_raw(path)
     if ds.attrs.get("format") != FORMAT_VERSION:
         raise TableFileError(f"emissivity table {path} is not a synthcorona table "
-                             f"(format attribute {ds.attrs.get('format')!r}, expected {FORMAT_VERSION!r})")
+                             f"(format attribute {ds.attrs.get('format')!r}, expected {FORMAT_VERSION!r})",
+                             path=path, attribute="format")
     missing = [v for v in ("line_wavelength", *PACKED_VARS) if v not in ds]
     if missing:
-        raise TableFileError(f"emissivity table {path} lacks variables {missing}")
+        raise TableFileError(f"emissivity table {path} lacks variables {missing}", path=path, variable=missing[0])
     if verify:
-        got = content_hash(ds)
-        if got != ds.attrs.get("content_hash"):
-            raise TableFileError(f"emissivity table {path} fails its content-hash check (stored "
-                                 f"{ds.attrs.get('content_hash')}, computed {got}): the file was altered or damaged")
+        verify_table(ds, path)
     for name in PACKED_VARS:
         a = ds[name]
         axes = tuple(int(x) for x in str(a.attrs.get("delta_axes", "")).split())

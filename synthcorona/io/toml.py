@@ -24,7 +24,7 @@ import numpy as np
 
 from ..errors import InputError, ScenarioError
 
-__all__ = ["Section", "load_toml", "dem_from_section", "abundances_from_key",
+__all__ = ["Section", "load_toml", "read_input_text", "dem_from_section", "abundances_from_key",
            "DEM_MODELS"]
 
 _MISSING = object()
@@ -271,19 +271,53 @@ class Section:
                                                                    if len(unknown) > 1 else ""))
 
 
-def load_toml(source, *, name: str | None = None) -> Section:
-    """Parse a TOML file (path) or text (``str`` containing a newline or ``=``) into a root :class:`Section`.
+def _looks_like_toml(path) -> bool:
+    return isinstance(path, str) and ("\n" in path or "=" in path)
 
-    Syntax errors name the file and TOML's line/column.
+
+def read_input_text(path) -> str:
+    """The text of an input file, which must be UTF-8.
+
+    Raises :class:`ScenarioError` naming the file if it is missing or unreadable, and, for a byte
+    that is not UTF-8, its offset from the start of the file (fields ``file`` and ``byte_offset``).
     """
-    if isinstance(source, pathlib.Path) or (isinstance(source, str) and "\n" not in source and "=" not in source):
-        path = pathlib.Path(source)
-        if not path.is_file():
-            raise ScenarioError(f"{path}: file not found")
-        text = path.read_text(encoding="utf-8")
+    shown = str(path) if len(str(path)) <= 80 else str(path)[:77] + "..."
+    p = pathlib.Path(path).expanduser()
+    try:
+        found = p.is_file()
+    except OSError:          # e.g. a name longer than the file system allows
+        found = False
+    if not found:
+        hint = " (to read TOML text rather than a file, pass it as text=)" if _looks_like_toml(path) else ""
+        raise ScenarioError(f"{shown}: file not found{hint}", file=str(path))
+    try:
+        data = p.read_bytes()
+    except OSError as exc:
+        raise ScenarioError(f"{shown}: cannot be read ({exc.strerror or exc})", file=str(path)) from None
+    try:
+        return data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        line = data.count(b"\n", 0, exc.start) + 1
+        raise ScenarioError(f"{shown}: byte {exc.start} (0x{data[exc.start]:02x}, line {line}) is not UTF-8 text; "
+                            "save the file as UTF-8", file=str(path), byte_offset=exc.start) from None
+
+
+def load_toml(path=None, *, text: str | None = None, name: str | None = None) -> Section:
+    """Parse a TOML file into a root :class:`Section`: ``load_toml(path)``, or TOML text with ``load_toml(text=...)``.
+
+    ``path`` (a ``str`` or path-like) is always a file path, whatever characters it holds; the file
+    must be UTF-8 (:func:`read_input_text`). ``name`` is the file name used in messages (default: the
+    path, or ``"<string>"`` for text). Syntax errors name the file and TOML's line/column.
+    """
+    if (path is None) == (text is None):
+        raise InputError("load_toml: give a file path, or TOML text as text=, not both and not neither",
+                         argument="path")
+    if text is None:
+        text = read_input_text(path)
         fname = name or str(path)
     else:
-        text = source
+        if not isinstance(text, str):
+            raise InputError(f"text must be a str of TOML; got a {type(text).__name__}", argument="text")
         fname = name or "<string>"
     try:
         data = tomllib.loads(text)

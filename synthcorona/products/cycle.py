@@ -47,7 +47,7 @@ from ..instruments.conversion import (
 )
 from ..spectral import Band
 from ..validation import as_quantity, as_scalar
-from .cycle_phase import CyclePhase
+from .cycle_phase import CyclePhase, coincident_phases
 
 __all__ = ["compare_cycle", "cycle_tables", "hardness_pairs", "phase_scenario", "DEFAULT_BANDS"]
 
@@ -145,6 +145,12 @@ def _check_phases(phases, star, period) -> tuple[list, bool]:
         raise InputError("phases mix cycle fractions and times: give every phase as a fraction in [0, 1) or every "
                          "phase as a time (e.g. '3 yr')", argument="phases")
     in_years = kinds == {True}
+    same = coincident_phases(phases)
+    if same is not None:
+        a, b = phases[same[0]], phases[same[1]]
+        when = f"{a.phase_value:g} yr" if in_years else f"cycle fraction {a.phase_value:g}"
+        raise InputError(f"phases '{a.label}' and '{b.label}' are both at {when}; every phase needs its own time "
+                         "(phases index the results)", argument="phases")
     if not isinstance(star, Star):
         raise InputError(f"star={star!r} must be a synthcorona.dimming.Star", argument="star")
     if period is not None:

@@ -28,7 +28,7 @@ from ..instruments.conversion import FLUX_UNIT
 from ..spectral import Band
 from ..validation import as_quantity, as_scalar, check_range
 
-__all__ = ["CyclePhase", "solve_emission_measure", "PHASE_SOURCES"]
+__all__ = ["CyclePhase", "solve_emission_measure", "coincident_phases", "PHASE_SOURCES"]
 
 #: How a phase's corona was given.
 PHASE_SOURCES = ("dem", "components", "flux")
@@ -134,6 +134,21 @@ class CyclePhase:
             return d
         return solve_emission_measure(self.flux, self.band, self.temperature, distance, width_dex=self.width_dex,
                                       abundances=abundances, density=density, table=table)
+
+
+def coincident_phases(phases) -> tuple[int, int] | None:
+    """Positions ``(i, j)``, ``i < j``, of the first two phases at the same time, or None if all differ.
+
+    Phases of one kind are compared by :attr:`CyclePhase.phase_value` (cycle fraction, or time in
+    years), equal to within 1e-12 relative (so "3 yr" and "1095.75 d" coincide). A cycle's phases
+    index its results, so each needs its own time.
+    """
+    values = [p.phase_value for p in phases]
+    order = sorted(range(len(values)), key=lambda k: values[k])
+    for a, b in zip(order, order[1:]):
+        if abs(values[b] - values[a]) <= 1e-12 * max(1.0, abs(values[a])):
+            return min(a, b), max(a, b)
+    return None
 
 
 def _shape_dem(temperature, width_dex, em) -> DEM:

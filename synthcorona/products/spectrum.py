@@ -25,14 +25,11 @@ from ..errors import InputError
 from ..spectral import Band
 
 __all__ = ["SpectrumProducts", "scenario_spectrum", "dem_spectrum", "emission_density", "table_density",
-           "wavelength_grid", "band_table", "DEFAULT_FLUX_BANDS", "MAX_SPECTRUM_BINS"]
+           "wavelength_grid", "band_table", "DEFAULT_FLUX_BANDS"]
 
 #: Bands of the flux table when none are given (scenario files' ``[output] flux_bands`` and ``emission --band``).
 DEFAULT_FLUX_BANDS = tuple(Band.parse(t) for t in ("0.1-2.4 keV", "0.3-2.0 keV", "2.0-10.0 keV", "165-180 Angstrom",
                                                      "185-200 Angstrom", "60-400 Angstrom"))
-#: Largest number of spectrum bins computed in one go.
-MAX_SPECTRUM_BINS = 2_000_000
-
 _FLUX = u.erg / u.s / u.cm ** 2
 
 
@@ -68,17 +65,30 @@ def table_density(density, table) -> u.Quantity:
 
 def wavelength_grid(limits, step, name: str = "wavelength range", step_name: str = "the bin") -> u.Quantity:
     """Bin centres [Angstrom] from the shorter to the longer wavelength of ``limits`` (a Band, text or
-    Quantity pair, wavelengths or energies) in bins of ``step`` (a length); at most
-    :data:`MAX_SPECTRUM_BINS` bins. ``name`` and ``step_name`` name the settings in errors."""
+    Quantity pair, wavelengths or energies) in bins of ``step`` (a length). ``name`` and ``step_name``
+    name the settings in errors.
+
+    A bin that is not a positive length raises :class:`InputError` naming ``step_name``; a grid whose
+    spectrum would exceed the memory budget (:func:`synthcorona.synthesis.spectrum_nbytes`,
+    :mod:`synthcorona.memory`) raises :class:`~synthcorona.errors.MemoryBudgetError` with the estimate,
+    the budget and ``step_name``, before the grid is allocated.
+    """
+    from ..memory import check_allocation
+    from ..synthesis import spectrum_nbytes
+    from ..validation import as_quantity
+
     band = Band.coerce(limits, name)
     w = u.Quantity([band.lo, band.hi]).to_value(u.AA, equivalencies=u.spectral())
     wlo, whi = float(w.min()), float(w.max())
-    step_aa = float(step.to_value(u.AA))
-    if not (np.isfinite(step_aa) and step_aa > 0):
-        raise InputError(f"{step_name}={step}: give a positive bin width (e.g. '0.02 Angstrom')", argument=step_name)
-    if (whi - wlo) / step_aa > MAX_SPECTRUM_BINS:
-        raise InputError(f"{name} {wlo:g}-{whi:g} Angstrom in {step_aa:g} Angstrom bins is more than "
-                         f"{MAX_SPECTRUM_BINS:,} bins; widen {step_name}", argument=name)
+    q = as_quantity(step_name, step, u.AA)
+    if np.ndim(q) != 0 or not (np.isfinite(q.value) and q.value > 0):
+        raise InputError(f"{step_name}={step}: give one positive bin width (e.g. '0.02 Angstrom')",
+                         argument=step_name)
+    step_aa = float(q.value)
+    n_bins = np.ceil((whi - wlo) / step_aa)
+    check_allocation(f"the spectrum over {name} {wlo:g}-{whi:g} Angstrom in {step_aa:g} Angstrom bins "
+                     f"({n_bins:,.0f} bins)", spectrum_nbytes(n_bins), f"{step_name} (wider bins) or {name}",
+                     argument=step_name)
     return np.arange(wlo, whi, step_aa) * u.AA
 
 
@@ -140,7 +150,7 @@ def scenario_spectrum(inputs, table=None) -> SpectrumProducts:
     fluxes = band_table(dem, inputs.output["flux_bands"], dist, table, abund, dens)
     rates = _rate_table(inputs, table, dens)
     grid = wavelength_grid(inputs.output["spectrum_range"], inputs.output["spectrum_bin"],
-                           name="[output] spectrum_range", step_name="spectrum_bin")
+                           name="[output] spectrum_range", step_name="[output] spectrum_bin")
     spec = synthesize(dem, wavelength=grid, table=table, abundances=abund, density=dens, distance=dist)
     meta = _meta(dem, dist, abund, dens, table)
     meta.update({"nh": str(nh) if nh is not None else "0 cm-2", "density_from": n_from,

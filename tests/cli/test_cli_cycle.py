@@ -75,7 +75,7 @@ def test_malformed_cycle_files_name_the_key(tmp_path, capsys, change, key):
     text = MINIMAL.replace(*change, 1)
     assert text != MINIMAL
     with pytest.raises(ScenarioError, match=key):
-        read_cycle_file(text, name="bad.toml")
+        read_cycle_file(text=text, name="bad.toml")
     f = tmp_path / "bad.toml"
     f.write_text(text)
     assert main(["cycle", str(f), "--out", str(tmp_path / "o"), "--no-figures"]) == 2

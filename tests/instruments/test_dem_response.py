@@ -277,3 +277,27 @@ def test_responses_outside_table_or_absorption_range_are_refused(table):
         mid.temperature_response(table=table, nh=1e20 * u.cm**-2)
     with pytest.raises(InputError, match="input_grid: energy_edges cover"):
         mid.temperature_response(table=table, input_grid=np.geomspace(1.0, 20.0, 100) * u.keV)
+
+
+def test_count_rates_broadcast_distance_and_nh(table, sxt):
+    # Reference: a loop of scalar count_rate calls (one DEM, one distance, one column).
+    mus = [6.3, 6.8, 7.0]
+    dems = sc.GaussianDEM(np.array(mus), 0.2, 1e51 * u.cm**-3)
+    d = [[5.0], [20.0]] * u.pc
+    nh = [1e19, 1e20, 1e19] * u.cm**-2
+    rates = sxt.count_rate(dems, distance=d, nh=nh, table=table)
+    assert rates.shape == (2, 3, len(sxt.bands))
+    for i in range(2):
+        for j in range(3):
+            ref = sxt.count_rate(sc.GaussianDEM(mus[j], 0.2, 1e51 * u.cm**-3), distance=d[i, 0], nh=nh[j], table=table)
+            np.testing.assert_allclose(rates.value[i, j], ref.value, rtol=1e-13)
+    da = sxt.count_rates(dems, distance=d, nh=nh, table=table)
+    assert da.dims == ("dem_0", "dem_1", "band")
+    np.testing.assert_array_equal(da.values, rates.value)
+    assert da.attrs["ism_nh_cm-2"] == "[1e+19, 1e+20, 1e+19]" and "1e+19-1e+20 cm-2" in da.attrs["ism_absorption"]
+    one = sc.GaussianDEM(6.5, 0.2, 1e51 * u.cm**-3)
+    r = sxt.count_rate(one, distance=[5.0, 10.0] * u.pc, band="soft", table=table)
+    assert r.shape == (2,) and r.value[0] / r.value[1] == pytest.approx(4.0, rel=1e-13)
+    with pytest.raises(InputError, match=r"distance has shape \(2,\), which does not broadcast") as err:
+        sxt.count_rate(dems, distance=[5.0, 10.0] * u.pc, table=table)
+    assert err.value.argument == "distance"

@@ -118,3 +118,48 @@ def test_emissivity_cache_is_keyed_on_the_table_content(table):
     recomputed = binned_emissivity(edges, fresh)
     assert recomputed is not first
     np.testing.assert_array_equal(recomputed, first)
+
+
+def test_observed_flux_broadcasts_distance_and_nh(table):
+    # Reference: a loop of scalar calls (one DEM, one distance, one column).
+    from synthcorona.errors import InputError
+
+    mus = [6.3, 6.8]
+    pair = sc.GaussianDEM(np.array(mus), 0.2, 1e51 * u.cm**-3)
+    d = [[4.0], [8.0], [16.0]] * u.pc
+    nh = [1e19, 3e20] * u.cm**-2
+    band = (0.2, 2.0) * u.keV
+    f = observed_flux(pair, band, distance=d, nh=nh, table=table)
+    assert f.shape == (3, 2)
+    for i in range(3):
+        for j in range(2):
+            ref = observed_flux(sc.GaussianDEM(mus[j], 0.2, 1e51 * u.cm**-3), band, distance=d[i, 0], nh=nh[j],
+                                table=table)
+            assert f.value[i, j] == pytest.approx(ref.value, rel=1e-13)
+    # one DEM, several distances and columns, several bands
+    one = sc.GaussianDEM(6.5, 0.2, 1e51 * u.cm**-3)
+    bands = {"a": band, "b": (2.0, 8.0) * u.keV}
+    f = observed_flux(one, bands, distance=[5.0, 10.0] * u.pc, nh=[[0.0], [1e20], [1e21]] * u.cm**-2, table=table)
+    assert f.shape == (3, 2, 2)
+    for i, col in enumerate([0.0, 1e20, 1e21]):
+        for j, x in enumerate([5.0, 10.0]):
+            ref = observed_flux(one, bands, distance=x * u.pc, nh=col * u.cm**-2, table=table)
+            np.testing.assert_allclose(f.value[i, j], ref.value, rtol=1e-13)
+    with pytest.raises(InputError, match=r"nh has shape \(3,\), which does not broadcast") as err:
+        observed_flux(pair, band, distance=5 * u.pc, nh=[1e19, 1e20, 1e21] * u.cm**-2, table=table)
+    assert err.value.argument == "nh"
+    with pytest.raises(InputError, match=r"nh=.*outside the valid range \[0, 1e\+24\]"):
+        observed_flux(pair, band, distance=5 * u.pc, nh=[1e19, -1.0] * u.cm**-2, table=table)
+
+
+def test_observed_flux_in_chunks_equals_one_block(table, monkeypatch):
+    from synthcorona.settings import MEMORY_BUDGET_ENV
+
+    rng = np.random.default_rng(5)
+    n = 600
+    dem = sc.GaussianDEM(rng.uniform(6.0, 7.0, n), 0.2, 1e51 * u.cm**-3)
+    kw = dict(distance=rng.uniform(3, 30, n) * u.pc, nh=rng.choice([1e19, 1e20, 1e21], n) * u.cm**-2, table=table)
+    monkeypatch.delenv(MEMORY_BUDGET_ENV, raising=False)
+    whole = observed_flux(dem, (0.2, 2.0) * u.keV, **kw)
+    monkeypatch.setenv(MEMORY_BUDGET_ENV, "200 kB")               # about 14 DEMs per chunk
+    np.testing.assert_array_equal(observed_flux(dem, (0.2, 2.0) * u.keV, **kw).value, whole.value)

@@ -16,7 +16,7 @@ REFERENCE = pathlib.Path(__file__).parent.parent.parent / "examples" / "cycle" /
 
 
 def test_minimal_cycle_file_runs_without_instruments():
-    ds = read_cycle_file(MINIMAL, name="ok.toml").run()
+    ds = read_cycle_file(text=MINIMAL, name="ok.toml").run()
     assert ds["flux"].sel(band="0.1-2.4 keV").values[1] == pytest.approx(1e-12, rel=1e-6)
     assert "count_rate" not in ds and ds["phase"].attrs["units"] == "1"
     per, amp = cycle_tables(ds)
@@ -44,14 +44,42 @@ def test_dimming_realisations_need_ten_false_alarms(tmp_path, realisations, ok):
     # the reference scenario has false_alarm = 0.01: 10 expected false alarms need 1000 realisations
     text = f'reference_scenario = "{REFERENCE}"\n' + MINIMAL + f"[dimming]\nrealisations = {realisations}\n"
     if ok:
-        inputs = read_cycle_file(text, name="c.toml")
+        inputs = read_cycle_file(text=text, name="c.toml")
         assert inputs.n_realisations == realisations and inputs.minimum_realisations == 1000
     else:
         with pytest.raises(ScenarioError, match=r"c.toml: \[dimming\] realisations = 999: .*>= 1000"):
-            read_cycle_file(text, name="c.toml")
+            read_cycle_file(text=text, name="c.toml")
 
 
 def test_hardness_of_unreported_band_names_the_key():
     text = MINIMAL + '[report]\ninstruments = ["sc-softx"]\nhardness = ["sc-softx:hard/sc-fe9"]\n'
     with pytest.raises(ScenarioError, match=r"bad.toml: \[report\] hardness: .*'sc-fe9' is not among"):
-        read_cycle_file(text, name="bad.toml")
+        read_cycle_file(text=text, name="bad.toml")
+
+
+def test_two_phases_at_the_same_time_name_both():
+    text = MINIMAL.replace("phase = 0.5", "phase = 0.0")
+    with pytest.raises(ScenarioError, match=r"c.toml: \[\[phase\]\]: phases 'a' \(\[phase\[0\]\]\) and 'b' "
+                                            r"\(\[phase\[1\]\]\) are at the same time \(phase = 0.0 and 0.0\)"):
+        read_cycle_file(text=text, name="c.toml")
+
+
+def test_non_utf8_byte_names_file_and_offset(tmp_path):
+    raw = MINIMAL.encode()
+    at = raw.index(b'title = "t"') + len(b'title = "')
+    f = tmp_path / "latin1.toml"
+    f.write_bytes(raw[:at] + "é".encode("latin-1") + raw[at + 1:])
+    with pytest.raises(ScenarioError, match=rf"latin1.toml: byte {at} \(0xe9, line 2\) is not UTF-8 text") as err:
+        read_cycle_file(f)
+    assert err.value.byte_offset == at and err.value.file == str(f)
+
+
+def test_path_with_equals_sign_is_a_path(tmp_path):
+    folder = tmp_path / "run=1"
+    folder.mkdir()
+    f = folder / "cycle=a.toml"
+    f.write_text(MINIMAL)
+    inputs = read_cycle_file(str(f))
+    assert inputs.source == str(f) and inputs.title == "t" and len(inputs.phases) == 2
+    with pytest.raises(ScenarioError, match=r"run=1/none=.toml: file not found"):
+        read_cycle_file(str(folder / "none=.toml"))

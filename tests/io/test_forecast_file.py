@@ -6,7 +6,7 @@ import astropy.units as u
 import numpy as np
 import pytest
 
-from synthcorona.errors import ScenarioError
+from synthcorona.errors import InputError, ScenarioError
 from synthcorona.io.forecast_file import flare_energy_from_class, read_forecast_file
 
 EXAMPLES = pathlib.Path(__file__).parent.parent.parent / "examples" / "scenarios"
@@ -212,3 +212,27 @@ def test_scenario_is_built_on_the_given_table(tmp_path, table):
     assert built.scenario.table.path == copy.resolve() and direct.scenario.table.path == copy.resolve()
     assert fi.scenario is None                                    # the inputs themselves are unchanged
     np.testing.assert_array_equal(built.scenario.depth()["depth"].values, direct.scenario.depth()["depth"].values)
+
+
+def test_non_utf8_byte_names_file_and_offset(tmp_path):
+    raw = BASE.encode()
+    p = tmp_path / "cp1252.toml"
+    p.write_bytes(raw[:10] + b"\x92" + raw[11:])
+    with pytest.raises(ScenarioError, match=r"cp1252.toml: byte 10 \(0x92, line \d+\) is not UTF-8 text; save the file "
+                                            "as UTF-8") as err:
+        read_forecast_file(p)
+    assert (err.value.file, err.value.byte_offset) == (str(p), 10)
+
+
+def test_path_is_a_path_and_text_is_explicit(tmp_path):
+    folder = tmp_path / "a=b"
+    folder.mkdir()
+    from_path = read_forecast_file(str(_write(folder, BASE, name="x=1.toml")), build=False)
+    assert from_path.source == str(folder / "x=1.toml") and from_path.title == "test star"
+    from_text = read_forecast_file(text=BASE, name="inline.toml", build=False)
+    assert from_text.source == "inline.toml" and from_text.raw_text == BASE
+    assert from_text.star.distance == from_path.star.distance
+    with pytest.raises(ScenarioError, match=r"file not found \(to read TOML text rather than a file, pass it as text=\)"):
+        read_forecast_file(BASE, build=False)
+    with pytest.raises(InputError, match="not both"):
+        read_forecast_file(folder / "x=1.toml", text=BASE)

@@ -9,11 +9,11 @@ from synthcorona.io.toml import abundances_from_key, dem_from_section, load_toml
 
 
 def _dem(text):
-    return dem_from_section(load_toml("[corona.dem]\n" + text, name="t.toml").section("corona").section("dem"))
+    return dem_from_section(load_toml(text="[corona.dem]\n" + text, name="t.toml").section("corona").section("dem"))
 
 
 def test_units_are_converted_by_astropy():
-    s = load_toml('d = "3.26156 lyr"\nt = "1 keV"\n', name="t.toml")
+    s = load_toml(text='d = "3.26156 lyr"\nt = "1 keV"\n', name="t.toml")
     # 1 pc = 3.26156 light years (IAU 2015 Resolution B2, pc and lyr definitions)
     assert s.quantity("d", u.pc).value == pytest.approx(1.0, rel=1e-5)
     # k_B = 8.617333e-5 eV/K (CODATA 2018): 1 keV = 1.16045e7 K
@@ -67,7 +67,7 @@ def test_tabulated_dem_inline():
 
 
 def test_abundances_by_name_or_table():
-    s = load_toml('a = "photospheric"\n[b]\nset = "photospheric"\nfip_bias = 4.0\n[c]\nset = "nonsense"\n',
+    s = load_toml(text='a = "photospheric"\n[b]\nset = "photospheric"\nfip_bias = 4.0\n[c]\nset = "nonsense"\n',
                   name="t.toml")
     a = abundances_from_key(s, "a")
     b = abundances_from_key(s, "b")
@@ -94,7 +94,7 @@ def test_toml_syntax_error_names_file(tmp_path):
     ('["16.5 nm", "180 Angstrom"]', [16.5, 18.0] * u.nm),
 ])
 def test_bands_are_read_with_their_unit(value, expected):
-    q = load_toml(f"b = {value}\n", name="t.toml").band("b")
+    q = load_toml(text=f"b = {value}\n", name="t.toml").band("b")
     assert q.unit == expected.unit
     np.testing.assert_allclose(q.value, expected.value, rtol=1e-12)
 
@@ -110,6 +110,28 @@ def test_bands_are_read_with_their_unit(value, expected):
 ])
 def test_bad_bands_are_named(value, phrase):
     with pytest.raises(ScenarioError) as exc:
-        load_toml(f"[r]\nb = {value}\n", name="t.toml").section("r").band("b")
+        load_toml(text=f"[r]\nb = {value}\n", name="t.toml").section("r").band("b")
     msg = str(exc.value)
     assert msg.startswith("t.toml: [r] b = ") and phrase in msg, msg
+
+
+def test_load_toml_takes_paths_as_paths_and_text_only_when_named(tmp_path):
+    from synthcorona.errors import InputError
+
+    p = tmp_path / "x=1.toml"
+    p.write_text('d = "3 pc"\n')
+    assert load_toml(p).quantity("d", u.pc).value == 3.0
+    assert load_toml(str(p)).file == str(p)
+    s = load_toml(text='d = "4 pc"\n')
+    assert s.file == "<string>" and s.quantity("d", u.pc).value == 4.0
+    with pytest.raises(ScenarioError, match=r"d = 1: file not found \(to read TOML text rather than a file"):
+        load_toml("d = 1")
+    with pytest.raises(InputError, match="not both and not neither"):
+        load_toml(p, text="d = 1")
+    with pytest.raises(InputError, match="not both and not neither"):
+        load_toml()
+    bad = tmp_path / "bad.toml"
+    bad.write_bytes(b'a = "\xff"\n')
+    with pytest.raises(ScenarioError, match=r"bad.toml: byte 5 \(0xff, line 1\) is not UTF-8 text") as err:
+        load_toml(bad)
+    assert err.value.byte_offset == 5

@@ -143,3 +143,19 @@ def test_cycle_tables_carry_units_and_every_phase():
     # flux linear in EM (same temperature): amplitude 7/2
     assert list(amp["quantity"]) == ["flux"] and amp["amplitude"][0] == pytest.approx(3.5, rel=1e-9)
     assert per.meta["table_content_hash"] == ds.attrs["table_content_hash"]
+
+
+@pytest.mark.parametrize("when, other, text", [
+    (0.25, 0.25, "cycle fraction 0.25"),
+    (3 * u.yr, 1095.75 * u.day, "3 yr"),
+])
+def test_two_phases_at_the_same_time_are_refused(when, other, text):
+    # Before: accepted, giving a dataset whose phase coordinate repeats a value (a non-unique index).
+    star = Star(distance=4 * u.pc)
+    dem = IsothermalDEM(3 * u.MK, 2e50 * u.cm ** -3)
+    later = 0.75 if not isinstance(when, u.Quantity) else 5 * u.yr
+    phases = [CyclePhase("min", when, dem=dem), CyclePhase("max", later, dem=dem.scaled(2.0)),
+              CyclePhase("again", other, dem=dem.scaled(3.0))]
+    with pytest.raises(InputError, match=rf"phases 'min' and 'again' are both at {text}") as err:
+        compare_cycle(phases, star)
+    assert err.value.argument == "phases"

@@ -90,7 +90,7 @@ def test_unbracketed_minimum_mass_is_a_note_with_the_probabilities(tmp_path):
         'mass_grid = { min = "1e17 g", max = "1e18 g", points = 3 }', 'mass_grid = ["1e10 g", "1e11 g"]')
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
-        inputs = read_forecast_file(text, name="tiny.toml")
+        inputs = read_forecast_file(text=text, name="tiny.toml")
         ds = run_forecast(inputs, show_realisations=0)
     note = str(ds["minimum_detectable_mass_note"].values[0])
     assert note.startswith("not bracketed in [1e+08, 1e+13] g: P(detect) = ")

@@ -9,7 +9,7 @@ import astropy.units as u
 import numpy as np
 import pytest
 
-from synthcorona.dem import IsothermalDEM
+from synthcorona.dem import GaussianDEM, IsothermalDEM
 from synthcorona.dimming.mass_removal import rtv_density
 from synthcorona.errors import InputError
 from synthcorona.io.forecast_file import read_forecast_file
@@ -91,10 +91,47 @@ def test_wavelength_grid(limits, step, n):
 
 
 @pytest.mark.parametrize("limits, step, text", [
-    ([1, 400] * u.AA, 1e-4 * u.AA, "more than 2,000,000 bins"),
     ([40, 10] * u.AA, 1 * u.AA, "not below"),
     ([10, 40] * u.AA, 0 * u.AA, "positive bin width"),
+    ([10, 40] * u.AA, -0.5 * u.AA, "positive bin width"),
+    ([10, 40] * u.AA, np.nan * u.AA, "positive bin width"),
+    ([10, 40] * u.AA, [0.5, 1.0] * u.AA, "one positive bin width"),
 ])
 def test_wavelength_grid_errors(limits, step, text):
-    with pytest.raises(InputError, match=text):
-        wavelength_grid(limits, step)
+    with pytest.raises(InputError, match=text) as err:
+        wavelength_grid(limits, step, step_name="wavelength_bin")
+    if "bin width" in text:
+        assert err.value.argument == "wavelength_bin"
+
+
+def test_wavelength_grid_beyond_the_memory_budget_is_refused_before_allocating(monkeypatch):
+    # Before: a fixed cap of 2,000,000 bins; `synthcorona emission` with tiny bins once grew to 23 GB.
+    # Expected estimate: 399,000,000 bins x SPECTRUM_BYTES_PER_BIN (200 bytes) = 79.8 GB.
+    import tracemalloc
+
+    from synthcorona.errors import MemoryBudgetError
+    from synthcorona.settings import MEMORY_BUDGET_ENV
+
+    monkeypatch.setenv(MEMORY_BUDGET_ENV, "4 GB")
+    tracemalloc.start()
+    try:
+        with pytest.raises(MemoryBudgetError, match=r"399,000,000 bins\) would need about 79.8 GB, more than the "
+                                                    r"memory budget of 4 GB .*change wavelength_bin \(wider bins\) or "
+                                                    r"wavelength_range") as err:
+            wavelength_grid([1, 400] * u.AA, 1e-6 * u.AA, name="wavelength_range", step_name="wavelength_bin")
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    assert peak < 1e6                                     # refused before the grid was allocated
+    assert (err.value.estimate, err.value.budget, err.value.argument) == (79_800_000_000, 4 * 10**9, "wavelength_bin")
+    assert wavelength_grid([1, 400] * u.AA, 1e-4 * u.AA).size == 3_990_000   # 0.8 GB: within this budget
+
+
+def test_dem_spectrum_names_its_bin_argument(table, monkeypatch):
+    from synthcorona.errors import MemoryBudgetError
+    from synthcorona.settings import MEMORY_BUDGET_ENV
+
+    monkeypatch.setenv(MEMORY_BUDGET_ENV, "1 GB")
+    with pytest.raises(MemoryBudgetError, match="change wavelength_bin") as err:
+        dem_spectrum(GaussianDEM(6.5, 0.2, 1e51 * u.cm ** -3), 5 * u.pc, wavelength_bin=1e-6 * u.AA, table=table)
+    assert err.value.argument == "wavelength_bin"
