@@ -55,3 +55,12 @@ def test_hardness_of_unreported_band_names_the_key():
     text = MINIMAL + '[report]\ninstruments = ["sc-softx"]\nhardness = ["sc-softx:hard/sc-fe9"]\n'
     with pytest.raises(ScenarioError, match=r"bad.toml: \[report\] hardness: .*'sc-fe9' is not among"):
         read_cycle_file(text, name="bad.toml")
+
+
+def test_flux_phase_width_is_width_logT_and_the_former_key_is_an_error():
+    # the Gaussian width of a flux phase has GaussianDEM's parameter name, width_logT
+    flux_phase = 'temperature = "3 MK"\n'
+    inputs = read_cycle_file(MINIMAL.replace(flux_phase, flux_phase + "width_logT = 0.2\n"), name="ok.toml")
+    assert inputs.phases[1].width_logT == 0.2
+    with pytest.raises(ScenarioError, match=r"bad.toml: \[phase\[1\]\] width_dex = 0.2: renamed: write width_logT = 0.2"):
+        read_cycle_file(MINIMAL.replace(flux_phase, flux_phase + "width_dex = 0.2\n"), name="bad.toml")

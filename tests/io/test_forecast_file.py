@@ -24,9 +24,9 @@ density = "2e9 cm-3"
 
 [corona.dem]
 model = "gaussian"
-peak_temperature = "2 MK"
-width_dex = 0.2
-emission_measure = "1e51 cm-3"
+peak_logT = 6.301
+width_logT = 0.2
+total_em = "1e51 cm-3"
 
 [cme]
 mass = "1e16 g"
@@ -146,8 +146,8 @@ MALFORMED = [
     ("distance 0", ('distance = "5 pc"', 'distance = "0 pc"'), "[star] distance", "valid range"),
     ("non-numeric", ('mass = "1e16 g"', 'mass = "lots of g"'), "[cme] mass", "cannot read"),
     ("wrong type", ("realisations = 1000", 'realisations = "many"'), "[montecarlo] realisations", "integer"),
-    ("wrong type table", ('\n[corona.dem]\nmodel = "gaussian"\npeak_temperature = "2 MK"\nwidth_dex = 0.2\n'
-                          'emission_measure = "1e51 cm-3"\n', 'dem = "gaussian"\n'), "[corona] dem", "must be a table"),
+    ("wrong type table", ('\n[corona.dem]\nmodel = "gaussian"\npeak_logT = 6.301\nwidth_logT = 0.2\n'
+                          'total_em = "1e51 cm-3"\n', 'dem = "gaussian"\n'), "[corona] dem", "must be a table"),
     ("bad flare class", ('energy = "1e32 erg"', 'class = "Z3"'), "[flare] class", "flare class"),
     ("energy and class", ('energy = "1e32 erg"', 'energy = "1e32 erg"\nclass = "M1"'), "[flare] class", "not both"),
     ("unknown generic", ('generic = "sc-fe9"', 'generic = "sc-fe99"'), "[instrument[0]] generic", "available"),

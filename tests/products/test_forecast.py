@@ -28,7 +28,7 @@ def same_scenario():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
         return DimmingScenario(Star(5 * u.pc, nh=1e18 * u.cm ** -2),
-                               Corona(GaussianDEM(np.log10(2e6), 0.2, 1e51 * u.cm ** -3), density=2e9 * u.cm ** -3),
+                               Corona(GaussianDEM(6.301, 0.2, 1e51 * u.cm ** -3), density=2e9 * u.cm ** -3),
                                CME(3e17 * u.g, source_temperature=2 * u.MK), Flare(1e31 * u.erg), "sc-fe9",
                                Observation(8 * u.h, 300 * u.s, 2 * u.h, false_alarm=0.05))
 
