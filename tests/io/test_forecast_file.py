@@ -77,6 +77,16 @@ def test_values_and_units(tmp_path):
     np.testing.assert_allclose(fi.mass_grid.to_value(u.g), np.geomspace(1e16 / 30, 3e16, 9), rtol=1e-12)
 
 
+def test_variability_table_sets_the_red_noise(tmp_path):
+    from synthcorona.dimming.noise import RedNoise
+
+    assert _read(tmp_path, BASE).observation.red_noise is None     # no table: Poisson noise only
+    fi = _read(tmp_path, BASE + '\n[variability]\namplitude = 0.05\ntimescale = "2 h"\n')
+    # 2 h = 7200 s (SI brochure)
+    assert fi.observation.red_noise == RedNoise(0.05, 7200 * u.s)
+    assert fi.observation.red_noise.tau_s == pytest.approx(7200.0, rel=1e-12)
+
+
 def test_mass_grid_forms(tmp_path):
     fi = _read(tmp_path, BASE.replace("seed = 3", 'seed = 3\nmass_grid = { min = "1e14 g", max = "1e18 g", points = 5 }'))
     np.testing.assert_allclose(fi.mass_grid.to_value(u.g), [1e14, 1e15, 1e16, 1e17, 1e18], rtol=1e-12)
@@ -160,6 +170,20 @@ MALFORMED = [
     ("escape fraction", ('source_temperature = "2 MK"', 'source_temperature = "2 MK"\nescape_fraction = 1.5'),
      "[cme] escape_fraction", "valid range"),
     ("dem model", ('model = "gaussian"', 'model = "lumpy"'), "[corona.dem] model", "one of"),
+    ("former dem key", ('total_em = "1e51 cm-3"', 'emission_measure = "1e51 cm-3"'), "[corona.dem] emission_measure",
+     "renamed: write total_em"),
+    ("misspelt key", ('pre_event = "1 h"', 'pre_evnt = "1 h"'), "[observation] pre_event",
+     "required key is missing (found 'pre_evnt'"),
+    ("variability amplitude", ("[montecarlo]", '[variability]\namplitude = 1.5\ntimescale = "1 h"\n\n[montecarlo]'),
+     "[variability] amplitude", "valid range [0, 1]"),
+    ("variability timescale", ("[montecarlo]", '[variability]\namplitude = 0.1\ntimescale = "0 s"\n\n[montecarlo]'),
+     "[variability] timescale", "valid range (0, 1e+09] s"),
+    ("variability without unit", ("[montecarlo]", '[variability]\namplitude = 0.1\ntimescale = 3600\n\n[montecarlo]'),
+     "[variability] timescale", "needs a unit"),
+    ("variability misspelt", ("[montecarlo]", '[variability]\namplitude = 0.1\ntimescale = "1 h"\ntimescal = 1\n\n'
+                                              '[montecarlo]'), "[variability] timescal", "did you mean 'timescale'?"),
+    ("variability incomplete", ("[montecarlo]", '[variability]\namplitude = 0.1\n\n[montecarlo]'),
+     "[variability] timescale", "required key is missing"),
 ]
 
 

@@ -139,3 +139,21 @@ def test_table_argument_is_used_and_recorded(small_forecast, tmp_path, table):
     assert other.attrs["table_file"] == str(copy.resolve()) and ds.attrs["table_file"] == str(table.path)
     np.testing.assert_array_equal(other["depth"].values, ds["depth"].values)   # same content, same numbers
     assert table_provenance(copy)["table_content_hash"] == table.provenance["content_hash"]
+
+
+def test_variability_table_reaches_the_forecast():
+    # the same file with and without a [variability] table (damped random walk, Kelly, Bechtold & Siemiginowska
+    # 2009): the variability raises the calibrated threshold and lowers P(detect); the forecast records it
+    text = (DATA / "small_forecast.toml").read_text()
+    n = 1000
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        plain = run_forecast(read_forecast_file(text, name="plain.toml"), realisations=n)
+        varied = run_forecast(read_forecast_file(text + '\n[variability]\namplitude = 0.1\ntimescale = "1 h"\n',
+                                                 name="varied.toml"), realisations=n)
+    a, b = float(plain["probability"].values[0]), float(varied["probability"].values[0])
+    assert b < a - 3 * math.sqrt(a * (1 - a) / n + b * (1 - b) / n), (a, b)
+    assert float(varied["threshold"].values[0]) > float(plain["threshold"].values[0])
+    assert np.all(varied["probability_vs_mass"].values <= plain["probability_vs_mass"].values)
+    assert varied.attrs["red_noise"] == "damped random walk, amplitude 0.1, timescale 3600 s"
+    assert plain.attrs["red_noise"] == "none"
