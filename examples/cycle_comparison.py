@@ -33,7 +33,7 @@ def main():
     phases = [
         CyclePhase("minimum", 0 * u.yr, dem=GaussianDEM(6.2, 0.2, 6e50 * u.cm ** -3)),
         CyclePhase("rise", 2 * u.yr, flux=3e-11 * u.erg / u.s / u.cm ** 2, band=[0.1, 2.4] * u.keV,
-                   temperature=2.2 * u.MK, width_dex=0.2),
+                   temperature=2.2 * u.MK, width_logT=0.2),
         CyclePhase("maximum", 4 * u.yr, dem=[GaussianDEM(6.4, 0.15, 2.5e51 * u.cm ** -3),
                                              IsothermalDEM(8 * u.MK, 5e50 * u.cm ** -3)]),
         CyclePhase("decline", 6 * u.yr, flux=4e-11 * u.erg / u.s / u.cm ** 2, band=[0.1, 2.4] * u.keV,

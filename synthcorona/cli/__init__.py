@@ -15,8 +15,9 @@ import sys
 
 __all__ = ["main", "build_parser", "COMMANDS"]
 
-#: Subcommand modules, one each (``NAME``, ``HELP``, ``add_arguments(parser)``, ``run(args) -> int``), in the
-#: order ``--help`` shows them.
+#: Subcommand modules, one each (``NAME``, ``HELP``, ``DESCRIPTION``, ``add_arguments(parser)``,
+#: ``run(args) -> int``), in the order ``--help`` shows them. ``HELP`` (one line) and ``DESCRIPTION``
+#: (the text of ``synthcorona <subcommand> --help``) are plain text, without reStructuredText markup.
 COMMANDS = [
     "forecast",
     "spectrum",
@@ -36,7 +37,7 @@ def build_parser() -> argparse.ArgumentParser:
     sub = p.add_subparsers(dest="command", required=True, metavar="<subcommand>")
     for modname in COMMANDS:
         mod = importlib.import_module(f".{modname}", __package__)
-        sp = sub.add_parser(mod.NAME, help=mod.HELP, description=(mod.__doc__ or mod.HELP).strip(),
+        sp = sub.add_parser(mod.NAME, help=mod.HELP, description=mod.DESCRIPTION.strip(),
                             formatter_class=argparse.RawDescriptionHelpFormatter)
         mod.add_arguments(sp)
         sp.set_defaults(func=mod.run)

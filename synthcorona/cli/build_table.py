@@ -3,6 +3,12 @@ from __future__ import annotations
 
 NAME = "build-table"
 HELP = "build an emissivity table from a CHIANTI copy"
+#: The text of ``synthcorona build-table --help`` (plain text).
+DESCRIPTION = """\
+Build an emissivity table (one netCDF file, --out) from a CHIANTI copy, one task per ion on a
+local dask cluster (--jobs) or a scheduler (--scheduler). Per-ion results are kept in --work-dir,
+so an interrupted build resumes where it stopped. Needs fiasco (Python 3.12).
+"""
 
 
 def add_arguments(p) -> None:

@@ -7,7 +7,8 @@ import os
 
 from ..errors import CliError, InputError
 
-__all__ = ["parse_quantity", "parse_band", "parse_range", "add_table_option", "load_table", "output_folder"]
+__all__ = ["parse_quantity", "parse_band", "parse_range", "add_table_option", "add_out_option", "default_out",
+           "load_table", "output_folder"]
 
 
 def parse_quantity(text: str, unit: str, what: str):
@@ -73,6 +74,20 @@ def add_table_option(p) -> None:
     p.add_argument("--table", dest="emissivity_table", metavar="FILE",
                    help="emissivity table built with 'synthcorona build-table' (default: $SYNTHCORONA_TABLE, else "
                         "the embedded CHIANTI 10.1 composite table)")
+
+
+def default_out(command: str) -> str:
+    """The default output folder of subcommand ``command``: ``<command>_out`` in the current folder
+    (``forecast_out``, ``spectrum_out``, ``cycle_out``, ``emission_out``)."""
+    return f"{command}_out"
+
+
+def add_out_option(p, command: str) -> None:
+    """``--out DIR``: the output folder of a subcommand that writes several files, default
+    :func:`default_out` (the one rule for every such subcommand)."""
+    p.add_argument("--out", default=default_out(command), metavar="DIR",
+                   help=f"output folder, created if needed (default '{default_out(command)}': the subcommand's "
+                        "name + '_out', in the current folder)")
 
 
 def load_table(args):

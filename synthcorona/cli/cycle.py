@@ -1,32 +1,35 @@
-"""``synthcorona cycle CYCLE.toml``: compare a star's corona across its activity cycle.
+"""``synthcorona cycle CYCLE.toml``: compare a star's corona across its activity cycle (what it writes:
+:data:`DESCRIPTION`)."""
+from __future__ import annotations
+
+import pathlib
+
+from ..errors import CliError
+from .common import add_out_option, add_table_option, load_table, output_folder
+
+NAME = "cycle"
+HELP = "compare fluxes, count rates, hardness and dimming detectability across an activity cycle"
+#: The text of ``synthcorona cycle --help`` (plain text).
+DESCRIPTION = """\
+Compare a star's corona across its activity cycle.
 
 Reads a cycle file (schema: docs/cycle_reference.md): the star, the phases (each a DEM, DEM
 components, or a measured band flux plus a temperature), the bands and instrument bands to
 report, an optional count-rate conversion and an optional reference CME scenario (a forecast
-file). Writes to the output folder:
+file). Writes into the output folder:
 
   cycle.nc              every result on a 'phase' dimension (netCDF, units and provenance in attrs)
   cycle_phases.ecsv     one row per phase, with units (and cycle_phases.csv, units in the header)
   cycle_amplitudes.ecsv max/min and log10(max/min) of every flux and count rate over the cycle
   cycle_*.png           each quantity against phase (unless --no-figures)
 """
-from __future__ import annotations
-
-import pathlib
-
-from ..errors import CliError
-from .common import add_table_option, load_table, output_folder
-
-NAME = "cycle"
-HELP = "compare fluxes, count rates, hardness and dimming detectability across an activity cycle"
 
 
 def add_arguments(p) -> None:
     """Options of ``synthcorona cycle``."""
     p.add_argument("cycle_file", metavar="CYCLE.toml", help="cycle file (TOML; keys, units and defaults in "
                                                              "docs/cycle_reference.md)")
-    p.add_argument("--out", default="synthcorona_out", metavar="DIR",
-                   help="output folder, created if needed (default 'synthcorona_out')")
+    add_out_option(p, NAME)
     add_table_option(p)
     p.add_argument("--realisations", type=int, default=None, metavar="N",
                    help="Monte Carlo realisations per detection probability (a count, no unit; default: "

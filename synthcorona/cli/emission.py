@@ -1,48 +1,84 @@
-"""``synthcorona emission``: spectrum and band fluxes of a DEM (Gaussian in log T or isothermal).
+"""``synthcorona emission``: spectrum and band fluxes of a DEM (Gaussian in log T or isothermal) given on the
+command line (what it writes: :data:`DESCRIPTION`; the numbers come from
+:func:`synthcorona.products.spectrum.dem_spectrum`).
 
-Writes band_fluxes.ecsv (energy flux at the observer and luminosity per band), spectrum.nc (flux
-density at the observer over ``--wavelength-range`` in bins of ``--wavelength-bin``) and
-spectrum.png; the numbers come from :func:`synthcorona.products.spectrum.dem_spectrum`.
+The DEM options are the parameter names of :class:`~synthcorona.dem.GaussianDEM` and
+:class:`~synthcorona.dem.IsothermalDEM` with ``-`` for ``_`` (``--peak-logT``, ``--width-logT``,
+``--temperature``, ``--total-em``).
 """
 from __future__ import annotations
 
-from .common import add_table_option, load_table, output_folder, parse_band, parse_quantity, parse_range
+import argparse
+
+from .common import add_out_option, add_table_option, load_table, output_folder, parse_band, parse_quantity, parse_range
 
 NAME = "emission"
 HELP = "spectrum and band fluxes of a DEM (Gaussian in log T or isothermal)"
+#: The text of ``synthcorona emission --help`` (plain text).
+DESCRIPTION = """\
+Spectrum and band fluxes of a DEM given on the command line: a Gaussian in log T (--peak-logT,
+--width-logT) or an isothermal plasma (--temperature), of total emission measure --total-em. The
+DEM options are the parameter names of the Python DEM classes (GaussianDEM, IsothermalDEM) and of
+the [...dem] keys of input files.
+
+With --distance, fluxes at the observer (no interstellar absorption); without it, luminosities
+only (emission into 4 pi) and the spectrum as a luminosity density. Writes into the output folder:
+
+  band_fluxes.ecsv, band_fluxes.csv   per band: flux (with --distance) and luminosity
+  spectrum.nc, spectrum.png           flux density at the observer (luminosity density without
+                                      --distance) over --wavelength-range in --wavelength-bin bins
+"""
+
+
+class _Renamed(argparse.Action):
+    """A former option name: an error naming the new option (never read as an alias)."""
+
+    def __init__(self, option_strings, dest, new: str = "", **kwargs):
+        self.new = new
+        super().__init__(option_strings, dest, help=argparse.SUPPRESS, **kwargs)
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        parser.error(f"{option_string} was renamed {self.new} (the DEM parameter name): write {self.new} '{values}'")
 
 
 def add_arguments(p) -> None:
     """Options of ``synthcorona emission``."""
-    p.add_argument("--peak-logT", type=float, default=6.6, help="Gaussian DEM peak, log10 T [K] (default 6.6)")
-    p.add_argument("--width-logT", type=float, default=0.25, help="Gaussian DEM sigma [dex] (default 0.25)")
-    p.add_argument("--temperature", help="isothermal plasma instead, e.g. '8 MK'")
-    p.add_argument("--em", default="3e51 cm-3", help="total volume emission measure (default '3e51 cm-3')")
-    p.add_argument("--distance", default="8.4 pc", help="distance of the star (default '8.4 pc')")
-    p.add_argument("--density", default="1e10 cm-3", help="electron density (default '1e10 cm-3')")
-    p.add_argument("--abundances", default="coronal", help="abundance set name (default 'coronal')")
-    p.add_argument("--band", action="append", help="band, e.g. '0.1-2.4 keV' or '171-175 Angstrom' (repeatable; "
+    p.add_argument("--peak-logT", type=float, default=6.6, metavar="LOGT",
+                   help="Gaussian DEM: log10 of the peak temperature in K, a plain number (default 6.6)")
+    p.add_argument("--width-logT", type=float, default=0.25, metavar="DEX",
+                   help="Gaussian DEM: sigma in log10 T, dex, a plain number (default 0.25)")
+    p.add_argument("--temperature", metavar="T", help="isothermal plasma of this temperature instead, e.g. '8 MK'")
+    p.add_argument("--total-em", default="3e51 cm-3", metavar="EM",
+                   help="total volume emission measure of the DEM (default '3e51 cm-3')")
+    p.add_argument("--em", action=_Renamed, new="--total-em")
+    p.add_argument("--distance", default=None, metavar="D",
+                   help="distance of the star, e.g. '8.4 pc'; needed for fluxes (default: none, so luminosities "
+                        "only)")
+    p.add_argument("--density", default="1e10 cm-3", metavar="N_E", help="electron density (default '1e10 cm-3')")
+    p.add_argument("--abundances", default="coronal", metavar="SET", help="abundance set name (default 'coronal'; "
+                                                             "'synthcorona list abundances')")
+    p.add_argument("--band", action="append", metavar="BAND", help="band, e.g. '0.1-2.4 keV' or '171-175 Angstrom' (repeatable; "
                                                     "default: six X-ray and EUV bands)")
     p.add_argument("--wavelength-range", nargs=2, metavar=("MIN", "MAX"), default=["1", "400"],
                    help="limits of the spectrum: two quantities ('10 Angstrom' '40 Angstrom', or energies "
                         "'0.5 keV' '2 keV') or two numbers in --wavelength-unit (default 1 400)")
-    p.add_argument("--wavelength-unit", default="Angstrom",
+    p.add_argument("--wavelength-unit", default="Angstrom", metavar="UNIT",
                    help="unit of plain numbers in --wavelength-range (default 'Angstrom')")
-    p.add_argument("--wavelength-bin", default="0.02 Angstrom",
+    p.add_argument("--wavelength-bin", default="0.02 Angstrom", metavar="WIDTH",
                    help="bin width of the spectrum (default '0.02 Angstrom')")
     add_table_option(p)
-    p.add_argument("--out", default="synthcorona_out", help="output folder (default 'synthcorona_out')")
+    add_out_option(p, NAME)
 
 
 def run(args) -> int:
-    """Compute and write the spectrum and band fluxes of the DEM; returns 0."""
+    """Compute and write the spectrum and band fluxes (or luminosities) of the DEM; returns 0."""
     from ..dem import GaussianDEM, IsothermalDEM
     from ..io.writers import write_figure, write_netcdf, write_table
     from ..plotting.spectrum import plot_spectrum
     from ..products.spectrum import DEFAULT_FLUX_BANDS, dem_spectrum
 
-    em = parse_quantity(args.em, "cm-3", "--em")
-    dist = parse_quantity(args.distance, "pc", "--distance")
+    em = parse_quantity(args.total_em, "cm-3", "--total-em")
+    dist = parse_quantity(args.distance, "pc", "--distance") if args.distance is not None else None
     dens = parse_quantity(args.density, "cm-3", "--density")
     if args.temperature:
         dem = IsothermalDEM(temperature=parse_quantity(args.temperature, "K", "--temperature"), total_em=em)
@@ -55,13 +91,17 @@ def run(args) -> int:
     res = dem_spectrum(dem, dist, bands=bands, density=dens, abundances=args.abundances, wavelength_range=limits,
                        wavelength_bin=step, table=table)
     out = output_folder(args.out)
-    written = write_table(res.fluxes, out / "band_fluxes.ecsv")
+    written = write_table(res.fluxes, out / "band_fluxes.ecsv", csv=True)
     written.append(write_netcdf(res.spectrum, out / "spectrum.nc"))
-    written.append(write_figure(plot_spectrum(res.spectrum, title=f"{dem!r} at {dist}"), out / "spectrum.png",
-                                dpi=120))
-    print(f"DEM: {dem!r}; distance {dist}; abundances {args.abundances}; n_e {dens}")
+    fig = plot_spectrum(res.spectrum, title=f"{dem!r} at {dist}" if dist is not None else f"{dem!r}: luminosity")
+    if dist is None:
+        fig.axes[0].set_ylabel(f"luminosity density [{res.spectrum.attrs.get('units', '')}]")
+    written.append(write_figure(fig, out / "spectrum.png", dpi=120))
+    print(f"DEM: {dem!r}; distance {dist if dist is not None else 'not given (luminosities only)'}; "
+          f"abundances {args.abundances}; n_e {dens}")
     print(f"table: {table.path.name} (CHIANTI {table.provenance.get('chianti_version')}, see provenance)")
     for r in res.fluxes:
-        print(f"  {r['band']:>22s}: flux {r['flux'].value:10.3e} erg s-1 cm-2   L {r['luminosity'].value:10.3e} erg s-1")
+        flux = f"flux {r['flux'].value:10.3e} erg s-1 cm-2   " if "flux" in r.colnames else ""
+        print(f"  {r['band']:>22s}: {flux}L {r['luminosity'].value:10.3e} erg s-1")
     print(f"wrote {', '.join(str(p) for p in written)}")
     return 0

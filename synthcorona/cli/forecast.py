@@ -1,24 +1,32 @@
-"""``synthcorona forecast``: CME-dimming forecast of a scenario file.
-
-Reads a forecast scenario (TOML; keys in docs/scenario_reference.md) and writes into the output
-folder: forecast.nc (every result, units and provenance in attrs), bands.ecsv/.csv (depth,
-duration, flare contamination, P(detect), minimum detectable mass per band),
-detection_vs_mass.ecsv/.csv, PNG figures (light curves with and without the CME, P(detect) vs
-mass, temperature responses) and a one-page report (Markdown and/or HTML).
-"""
+"""``synthcorona forecast``: CME-dimming forecast of a scenario file (what it writes: :data:`DESCRIPTION`)."""
 from __future__ import annotations
 
 from ..errors import CliError
-from .common import add_table_option, load_table, output_folder
+from .common import add_out_option, add_table_option, load_table, output_folder
 
 NAME = "forecast"
 HELP = "CME-dimming forecast of a scenario file: depths, durations, P(detect), minimum detectable mass, report"
+#: The text of ``synthcorona forecast --help`` (plain text).
+DESCRIPTION = """\
+CME-dimming forecast of a scenario file.
+
+Reads a forecast scenario (TOML; every key, unit, default and valid range in
+docs/scenario_reference.md) and writes into the output folder:
+
+  forecast.nc                  every result (netCDF, units and provenance in attrs)
+  bands.ecsv, bands.csv        per band: depth, duration, flare contamination, P(detect),
+                               minimum detectable mass
+  detection_vs_mass.ecsv/.csv  P(detect) over the scenario's grid of CME masses
+  *.png                        light curves with and without the CME, P(detect) against mass,
+                               temperature responses (unless --no-figures)
+  report.md / report.html      a one-page report (--report)
+"""
 
 
 def add_arguments(p) -> None:
     """Options of ``synthcorona forecast``."""
     p.add_argument("scenario", help="forecast scenario file (TOML; every quantity a string with a unit)")
-    p.add_argument("--out", default="forecast_out", help="output folder (created if needed; default 'forecast_out')")
+    add_out_option(p, NAME)
     add_table_option(p)
     p.add_argument("--realisations", type=int, default=None,
                    help="Monte Carlo realisations per probability (a count, dimensionless; 100-1e6 and >= 10 / "

@@ -1,24 +1,30 @@
-"""``synthcorona list [instruments|bands|abundances|dems|all]``: what is available without any file.
-
-* instruments -- the ready-made generic instruments (designs of synthcorona, not any real
-  mission's calibration) with their named bands;
-* bands -- every named band of those instruments with its limits;
-* abundances -- the named abundance sets and their published sources;
-* dems -- the DEM models a ``[...dem]`` table of an input file may use, with their keys;
-* table -- a summary of the embedded emissivity table;
-* all (default) -- everything above.
-"""
+"""``synthcorona list [instruments|bands|abundances|dems|table|all]``: what is available without any file
+(the choices: :data:`WHAT`)."""
 from __future__ import annotations
+
+import textwrap
 
 NAME = "list"
 HELP = "list generic instruments, bands, abundance sets, DEM models and the embedded table"
-WHAT = ("instruments", "bands", "abundances", "dems", "table", "all")
+#: The choices of ``synthcorona list`` and what each prints.
+WHAT = {
+    "instruments": "the ready-made generic instruments (designs of synthcorona, not any real mission's "
+                   "calibration) with their named bands",
+    "bands": "every named band of those instruments with its limits",
+    "abundances": "the named abundance sets and their published sources",
+    "dems": "the DEM models a [...dem] table of an input file may use, with their keys",
+    "table": "a summary of the embedded emissivity table",
+    "all": "everything above (the default)",
+}
+#: The text of ``synthcorona list --help`` (plain text).
+DESCRIPTION = "What is available without any file:\n\n" + "\n".join(
+    textwrap.fill(v, width=96, initial_indent=f"  {k:<13s}", subsequent_indent=" " * 15) for k, v in WHAT.items())
 
 
 def add_arguments(p) -> None:
     """Options of ``synthcorona list``."""
-    p.add_argument("what", nargs="?", default="all", choices=WHAT,
-                   help="what to list (default 'all'); no units involved")
+    p.add_argument("what", nargs="?", default="all", choices=tuple(WHAT),
+                   help=f"what to list: {', '.join(WHAT)} (default 'all'; each is described above)")
 
 
 def _instruments(with_bands: bool) -> list[str]:

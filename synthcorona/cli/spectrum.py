@@ -1,25 +1,32 @@
-"""``synthcorona spectrum``: spectrum, band fluxes, luminosities and count rates of a scenario's corona.
-
-Uses the ``[star]``, ``[corona]``, ``[[instrument]]`` and ``[output]`` tables of a forecast scenario
-file (the CME, flare and observation tables are read and checked but not used). Writes
-spectrum.nc (flux density at the observer, no interstellar absorption), spectrum.png,
-band_fluxes.ecsv/.csv (energy flux at the observer without absorption and luminosity per band of
-``[output] flux_bands``) and count_rates.ecsv/.csv (count rate per instrument band, interstellar
-absorption of ``[star] nh`` included). The numbers come from
-:func:`synthcorona.products.spectrum.scenario_spectrum`.
-"""
+"""``synthcorona spectrum``: spectrum, band fluxes, luminosities and count rates of a scenario's corona
+(what it writes: :data:`DESCRIPTION`; the numbers come from
+:func:`synthcorona.products.spectrum.scenario_spectrum`)."""
 from __future__ import annotations
 
-from .common import add_table_option, load_table, output_folder
+from .common import add_out_option, add_table_option, load_table, output_folder
 
 NAME = "spectrum"
 HELP = "spectrum, band fluxes, luminosities and instrument count rates of a scenario file's corona"
+#: The text of ``synthcorona spectrum --help`` (plain text).
+DESCRIPTION = """\
+Spectrum, band fluxes, luminosities and count rates of a scenario file's corona.
+
+Uses the [star], [corona], [[instrument]] and [output] tables of a forecast scenario file (the
+CME, flare and observation tables are read and checked but not used). Writes into the output
+folder:
+
+  spectrum.nc, spectrum.png       flux density at the observer, no interstellar absorption
+  band_fluxes.ecsv, .csv          energy flux at the observer (no absorption) and luminosity
+                                  in each band of [output] flux_bands
+  count_rates.ecsv, .csv          count rate in each instrument band, interstellar absorption
+                                  of [star] nh included
+"""
 
 
 def add_arguments(p) -> None:
     """Options of ``synthcorona spectrum``."""
     p.add_argument("scenario", help="forecast scenario file (TOML; its [star], [corona], [[instrument]] are used)")
-    p.add_argument("--out", default="spectrum_out", help="output folder (created if needed; default 'spectrum_out')")
+    add_out_option(p, NAME)
     add_table_option(p)
     p.add_argument("--no-figures", action="store_true", help="write no PNG figure")
 

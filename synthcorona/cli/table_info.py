@@ -3,6 +3,11 @@ from __future__ import annotations
 
 NAME = "table-info"
 HELP = "print the provenance of an emissivity table"
+#: The text of ``synthcorona table-info --help`` (plain text).
+DESCRIPTION = """\
+Print the provenance of an emissivity table: CHIANTI version and substituted ions, fiasco
+version, ionisation equilibrium, elements, line threshold, build date and content hash.
+"""
 
 
 def add_arguments(p) -> None:

@@ -349,8 +349,7 @@ def _dataset(setup: _Setup, res, multi, case, n_cases) -> xr.Dataset:
         "seed_spawn_key": str(tuple(setup.seq.spawn_key)),
         "sampler": res["method"] or "",
         "n_bins": int(setup.widths.size),
-        "red_noise": "none" if setup.red_noise is None else
-        f"damped random walk, amplitude {setup.red_noise.amplitude:g}, timescale {setup.red_noise.tau_s:g} s",
+        "red_noise": "none" if setup.red_noise is None else setup.red_noise.description,
         "method": ("injection-recovery; threshold = empirical (1 - false_alarm) quantile of event-free simulations; "
                    + ("exact conditional binomial test of two Poisson rates (Przyborowski & Wilenski 1940, "
                       "Biometrika 31, 313)" if setup.statistic == "window" else

@@ -230,7 +230,13 @@ class RedNoise:
 
     @property
     def tau_s(self) -> float:
+        """The damping timescale tau in seconds."""
         return float(self.timescale.to_value(u.s))
+
+    @property
+    def description(self) -> str:
+        """One line for result attributes: "damped random walk, amplitude 0.05, timescale 3600 s"."""
+        return f"damped random walk, amplitude {self.amplitude:g}, timescale {self.tau_s:g} s"
 
     @classmethod
     def coerce(cls, value) -> "RedNoise | None":

@@ -6,8 +6,10 @@ r"""A complete CME-dimming forecast: star, corona, CME, flare, instrument and ob
 * its time profile (:mod:`synthcorona.dimming.profile`),
 * the associated flare, from the 0D loop model :class:`~synthcorona.dimming.flare.LoopFlareModel`
   folded through each band's temperature response,
-* Poisson realisations (:mod:`synthcorona.dimming.noise`) and detection probabilities
-  (:mod:`synthcorona.dimming.detection`).
+* Poisson realisations (:mod:`synthcorona.dimming.noise`), optionally with the red noise of
+  ``Observation.red_noise`` (a damped random walk of the source rate), and detection probabilities
+  (:mod:`synthcorona.dimming.detection`) whose thresholds are calibrated on event-free light curves
+  with the same noise.
 
 What the scenario computes once from its inputs is its prepared state, built by
 :func:`~synthcorona.dimming.prepared.prepare_scenario` (:mod:`synthcorona.dimming.prepared`).
@@ -59,7 +61,7 @@ from ..validation import as_quantity, as_scalar, check_range
 from . import detection
 from . import mass_removal as mr
 from . import profile as prof
-from .noise import as_seed_sequence, poisson_counts
+from .noise import RedNoise, as_seed_sequence, poisson_counts
 from .prepared import PreparedScenario, prepare_scenario
 
 __all__ = ["Star", "Corona", "CME", "Flare", "Observation", "DimmingScenario"]
@@ -180,15 +182,22 @@ class Flare:
 class Observation:
     """The observation: total ``exposure`` (light-curve length), ``bin_width``, ``pre_event``
     duration before the CME onset, ``background`` rate (a Quantity for every band or a dict band ->
-    Quantity, ct/s), detection ``false_alarm`` probability (default 0.01)."""
+    Quantity, ct/s), detection ``false_alarm`` probability (default 0.01) and the source's
+    ``red_noise``: None (default, Poisson noise only) or a :class:`~synthcorona.dimming.noise.RedNoise`
+    (or an ``(amplitude, timescale)`` pair), the multiplicative damped-random-walk variability of
+    Kelly, Bechtold & Siemiginowska (2009, ApJ 698, 895) applied to the source rate of every
+    simulated light curve, the event-free ones that calibrate the detection threshold included.
+    """
 
     exposure: u.Quantity
     bin_width: u.Quantity
     pre_event: u.Quantity
     background: Any = field(default_factory=lambda: 0 * u.ct / u.s)
     false_alarm: float = 0.01
+    red_noise: RedNoise | None = None
 
     def __post_init__(self):
+        object.__setattr__(self, "red_noise", RedNoise.coerce(self.red_noise))
         exp = _scalar("exposure", self.exposure, u.s, lo=0.0, unit_label="s", inclusive=False)
         bw = _scalar("bin_width", self.bin_width, u.s, lo=0.0, unit_label="s", inclusive=False)
         if exp < bw:
@@ -361,6 +370,7 @@ class DimmingScenario:
             "cme_onset_time_s": timing.t0,
             "flare_termination": self.prepared.flare.termination,
             "instruments": ", ".join(f"{lab}={ins.name}/{b}" for lab, ins, b in self.channels),
+            "red_noise": "none" if self.observation.red_noise is None else self.observation.red_noise.description,
             "method": ("mass-loss dimming: Delta EM = n_e f_esc M / (mu_H m_H) spread over the source temperatures; "
                        "depth = sum Delta EM K / sum EM K per band (synthcorona.dimming)"),
         }
@@ -450,7 +460,8 @@ class DimmingScenario:
             seqs = as_seed_sequence(seed).spawn(len(background))
             widths = np.diff(edges) * u.s
             counts = np.stack([poisson_counts(total[b] * u.ct / u.s, widths, n, seqs[b],
-                                              background=background[b] * u.ct / u.s)
+                                              background=background[b] * u.ct / u.s,
+                                              red_noise=self.observation.red_noise)
                                for b in range(len(background))], axis=1)
             data["counts"] = (("realisation", "band", "time"), counts, {"units": "ct"})
         attrs = self.result_attrs()
@@ -474,7 +485,7 @@ class DimmingScenario:
                 lc["expected"].values[b] * u.ct / u.s, lc["expected_without_cme"].values[b] * u.ct / u.s,
                 self.bin_width * u.s, false_alarm=self.observation.false_alarm, n_realisations=n_realisations,
                 statistic=statistic, windows=self.detection_windows() if statistic == "window" else None, seed=seed,
-                background=background[b] * u.ct / u.s)
+                background=background[b] * u.ct / u.s, red_noise=self.observation.red_noise)
             out.append(ds.expand_dims(band=[labels[b]]))
         res = xr.concat(out, dim="band", combine_attrs="override")
         res.attrs.update(self.result_attrs())
@@ -516,7 +527,7 @@ class DimmingScenario:
             fn, self.bin_width * u.s, bracket=(lo_g * u.g, hi_g * u.g), target_probability=target_probability,
             false_alarm=self.observation.false_alarm, n_realisations=n_realisations, statistic=statistic,
             windows=self.detection_windows() if statistic == "window" else None, seed=seed, xtol=xtol,
-            background=rates.background[b] * u.ct / u.s)
+            background=rates.background[b] * u.ct / u.s, red_noise=self.observation.red_noise)
         res = res.rename({"parameter": "mass", "parameter_error": "mass_error"})
         res.attrs.update(self.result_attrs())
         res.attrs["band"] = self.labels[b]

@@ -113,7 +113,10 @@ def _phases(root: Section) -> list:
             raise p.error("phase", "mixes cycle fractions (plain numbers in [0, 1)) and times (\"3 yr\"); give "
                                    "every phase the same way")
         dsec = p.section("dem")
-        flux_keys = [k for k in ("flux", "band", "temperature", "width_dex") if p.has(k)]
+        if "width_dex" in p.data:
+            raise p.error("width_dex", f"renamed: write width_logT = {p.data['width_dex']!r} (the parameter name of "
+                                       "GaussianDEM)")
+        flux_keys = [k for k in ("flux", "band", "temperature", "width_logT") if p.has(k)]
         if dsec is not None and flux_keys:
             raise p.error(flux_keys[0], "give either a [phase.dem] table or flux + band + temperature, not both")
         if dsec is not None:
@@ -125,9 +128,9 @@ def _phases(root: Section) -> list:
             flux = p.quantity("flux", u.erg / u.s / u.cm ** 2, required=True, lo=0.0, lo_inclusive=False)
             band = p.band("band", required=True)
             temp = p.quantity("temperature", u.K, required=True, lo=1e4, hi=1e9)
-            width = p.number("width_dex", default=None, lo=0.0, lo_inclusive=False, hi=3.0)
+            width = p.number("width_logT", default=None, lo=0.0, lo_inclusive=False, hi=3.0)
             phase_obj = _wrap(p.where(), CyclePhase, label, phase, flux=flux, band=band, temperature=temp,
-                              width_dex=width)
+                              width_logT=width)
         p.finish()
         out.append(phase_obj)
     same = coincident_phases(out)

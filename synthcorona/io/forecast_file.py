@@ -2,7 +2,7 @@
 
 :func:`read_forecast_file` reads the tables ``[scenario]``, ``[star]``, ``[corona]`` (with
 ``[corona.dem]``), ``[cme]``, ``[flare]`` (optional), ``[[instrument]]`` (one or more),
-``[observation]``, ``[montecarlo]`` and ``[output]`` (optional), checks every key (type, unit,
+``[observation]``, ``[variability]`` (optional), ``[montecarlo]`` and ``[output]`` (optional), checks every key (type, unit,
 range; unknown keys refused) with :class:`synthcorona.io.toml.Section`, and builds the
 :class:`~synthcorona.dimming.scenario.DimmingScenario` of the forecast. Every key, unit,
 default and valid range is documented in ``docs/scenario_reference.md``.
@@ -28,7 +28,7 @@ from ..errors import InputError, ScenarioError
 from .toml import Section, abundances_from_key, dem_from_section, load_toml, read_input_text
 
 __all__ = ["ForecastInputs", "MonteCarlo", "InstrumentEntry", "read_forecast_file", "flare_energy_from_class",
-           "FLARE_CLASS_FLUX", "STATISTICS"]
+           "FLARE_CLASS_FLUX", "STATISTICS", "VARIABILITY_RANGES"]
 
 #: Detection statistics of :meth:`DimmingScenario.detection_probability`.
 STATISTICS = ("window", "likelihood")
@@ -369,7 +369,31 @@ def _observation(root: Section, labels):
         bg = o.quantity("background", u.ct / u.s, default=0 * u.ct / u.s, lo=0.0, hi=1e12)
     fa = o.number("false_alarm", default=0.01, lo=0.0, lo_inclusive=False, hi=0.5, hi_inclusive=False)
     o.finish()
-    return _wrap(o, None, Observation, exposure=exposure, bin_width=bw, pre_event=pre, background=bg, false_alarm=fa)
+    return _wrap(o, None, Observation, exposure=exposure, bin_width=bw, pre_event=pre, background=bg, false_alarm=fa,
+                 red_noise=_variability(root))
+
+
+#: Valid ranges of the ``[variability]`` keys: amplitude (rms fraction) and timescale [s].
+VARIABILITY_RANGES = {"amplitude": (0.0, 1.0), "timescale": (0.0, 1e9)}
+
+
+def _variability(root: Section):
+    """The optional ``[variability]`` table -> :class:`~synthcorona.dimming.noise.RedNoise` or None.
+
+    ``amplitude``: rms of the relative fluctuation of the source rate (plain number, [0, 1]);
+    ``timescale``: damping time tau of the damped random walk (time, (0, 1e9] s); both required in
+    the table. The model is that of Kelly, Bechtold & Siemiginowska (2009, ApJ 698, 895).
+    """
+    from ..dimming.noise import RedNoise
+
+    v = root.section("variability")
+    if v is None:
+        return None
+    (a_lo, a_hi), (t_lo, t_hi) = VARIABILITY_RANGES["amplitude"], VARIABILITY_RANGES["timescale"]
+    amplitude = v.number("amplitude", required=True, lo=a_lo, hi=a_hi)
+    timescale = v.quantity("timescale", u.s, required=True, lo=t_lo, lo_inclusive=False, hi=t_hi)
+    v.finish()
+    return _wrap(v, None, RedNoise, float(amplitude), timescale)
 
 
 def _montecarlo(root: Section, mass, false_alarm: float):

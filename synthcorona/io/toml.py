@@ -14,6 +14,7 @@ models of :mod:`synthcorona.dem`) and :func:`abundances_from_key`.
 """
 from __future__ import annotations
 
+import difflib
 import math
 import pathlib
 import tomllib
@@ -25,7 +26,7 @@ import numpy as np
 from ..errors import InputError, ScenarioError
 
 __all__ = ["Section", "load_toml", "read_input_text", "dem_from_section", "abundances_from_key",
-           "DEM_MODELS"]
+           "DEM_MODELS", "RENAMED_DEM_KEYS"]
 
 _MISSING = object()
 
@@ -63,6 +64,7 @@ class Section:
         self.path = path
         self.file = file
         self._used: set[str] = set()
+        self._known: set[str] = set()  # every key asked for, present or not: the valid keys of this table
 
     # -- messages -------------------------------------------------------------------------------
     def where(self, key: str | None = None) -> str:
@@ -78,15 +80,19 @@ class Section:
 
     # -- raw access -----------------------------------------------------------------------------
     def has(self, key: str) -> bool:
-        """True if ``key`` is present (does not mark it used)."""
+        """True if ``key`` is present (does not mark it used, but makes it a known key for :meth:`finish`)."""
+        self._known.add(key)
         return key in self.data
 
     def _get(self, key, required, default):
+        self._known.add(key)
         if key in self.data:
             self._used.add(key)
             return self.data[key]
         if required:
-            raise ScenarioError(f"{self.where(key)}: required key is missing")
+            near = difflib.get_close_matches(key, [k for k in self.data if k not in self._used], n=1, cutoff=0.6)
+            hint = f" (found '{near[0]}': a misspelling of '{key}'?)" if near else ""
+            raise ScenarioError(f"{self.where(key)}: required key is missing{hint}")
         return default
 
     def raw(self, key: str, *, required: bool = False, default: Any = None):
@@ -263,12 +269,26 @@ class Section:
         return f"{self.path}.{key}" if self.path else key
 
     def finish(self) -> None:
-        """Refuse keys that were never read (unknown or misspelt), naming them and the known ones."""
+        """Refuse keys that were never read (unknown or misspelt).
+
+        The message names the first unknown key and suggests the nearest valid key of this table
+        (:func:`difflib.get_close_matches` among the keys the reader asked for), else lists the valid
+        keys: ``t.toml: [observation] exposur: unknown key; did you mean 'exposure'?``.
+        """
         unknown = [k for k in self.data if k not in self._used]
-        if unknown:
-            k = unknown[0]
-            raise ScenarioError(f"{self.where(k)}: unknown key" + (f" (also unknown: {', '.join(unknown[1:])})"
-                                                                   if len(unknown) > 1 else ""))
+        if not unknown:
+            return
+        k = unknown[0]
+        valid = sorted(self._known - set(unknown))
+        near = difflib.get_close_matches(k, valid, n=1, cutoff=0.5)
+        if near:
+            hint = f"; did you mean '{near[0]}'?"
+        elif valid:
+            hint = f"; valid keys here: {', '.join(valid)}"
+        else:
+            hint = "; this table takes no keys"
+        also = f" (also unknown: {', '.join(unknown[1:])})" if len(unknown) > 1 else ""
+        raise ScenarioError(f"{self.where(k)}: unknown key{hint}{also}")
 
 
 def _looks_like_toml(path) -> bool:
@@ -326,43 +346,72 @@ def load_toml(path=None, *, text: str | None = None, name: str | None = None) ->
     return Section(data, "", fname)
 
 
-#: DEM models of a ``[...dem]`` table: ``model = "<name>"`` -> keys it reads (documented in the user guide).
+#: DEM models of a ``[...dem]`` table: ``model = "<name>"`` -> keys it reads. The keys are the parameter names
+#: of the DEM classes of :mod:`synthcorona.dem` (one spelling in Python, files and the command line).
 DEM_MODELS = {
-    "isothermal": "temperature, emission_measure",
-    "gaussian": "peak_temperature, width_dex, emission_measure",
-    "power_law": "slope, peak_temperature, emission_measure, min_temperature (default 0.1 MK)",
+    "isothermal": "temperature, total_em",
+    "gaussian": "peak_logT, width_logT, total_em",
+    "power_law": "slope, peak_temperature, total_em, min_temperature (default 0.1 MK)",
     "tabulated": "temperature (list), dem (list, per kelvin) or file (ECSV/CSV with columns temperature, dem)",
     "components": "[[...component]] tables, each an isothermal or gaussian model",
 }
 
+#: Keys of ``[...dem]`` tables that were renamed to the DEM classes' parameter names: old -> new. They are
+#: refused with a message naming the new key (by model; None: every model).
+RENAMED_DEM_KEYS = {
+    None: {"emission_measure": "total_em", "width_dex": "width_logT"},
+    "gaussian": {"peak_temperature": "peak_logT"},
+}
+
 _T_RANGE = (1e4, 1e9)  # K: what any table can hold (the table's own grid is checked at synthesis)
+_LOGT_RANGE = tuple(float(np.log10(t)) for t in _T_RANGE)
+
+
+def _refuse_renamed_dem_keys(sec: Section, model: str) -> None:
+    """A key of :data:`RENAMED_DEM_KEYS` is an error naming its new spelling (never read as an alias)."""
+    renamed = {**RENAMED_DEM_KEYS[None], **RENAMED_DEM_KEYS.get(model, {})}
+    for old, new in renamed.items():
+        if old not in sec.data:  # not sec.has: a former spelling is no valid key to suggest
+            continue
+        value, note = _show(sec.data[old]), ""
+        if new == "peak_logT":
+            note = " (log10 of the peak temperature in K, a plain number)"
+            try:
+                kelvin = u.Quantity(sec.data[old]).to_value(u.K, equivalencies=u.temperature_energy())
+                value = format(float(np.log10(kelvin)), ".4g")
+            except (TypeError, ValueError, u.UnitsError):
+                value = "<log10 T>"
+        raise sec.error(old, f"renamed: write {new} = {value}{note}; the keys of a DEM table are the parameter "
+                             "names of the DEM classes")
 
 
 def dem_from_section(sec: Section, *, em_unit="cm-3"):
     """Build a DEM (:mod:`synthcorona.dem`) from a ``[...dem]`` table; calls ``sec.finish()``.
 
-    Keys by ``model`` (see :data:`DEM_MODELS`): temperatures in K-convertible units
-    (``"2 MK"``), ``emission_measure`` in ``em_unit`` (volume cm-3 by default, column cm-5),
-    ``width_dex`` and ``slope`` plain numbers.
+    The keys are the parameter names of the DEM classes (see :data:`DEM_MODELS`): temperatures in
+    K-convertible units (``"2 MK"``), ``total_em`` in ``em_unit`` (volume cm-3 by default, column
+    cm-5), ``peak_logT`` (log10 K), ``width_logT`` (dex) and ``slope`` plain numbers. The former
+    spellings (:data:`RENAMED_DEM_KEYS`) are errors naming the new key.
     """
     from .. import dem as demmod
 
     em_unit = u.Unit(em_unit)
     model = sec.string("model", required=True, choices=tuple(DEM_MODELS))
+    _refuse_renamed_dem_keys(sec, model)
     if model == "isothermal":
         d = demmod.IsothermalDEM(temperature=sec.quantity("temperature", u.K, required=True, lo=_T_RANGE[0],
                                                           hi=_T_RANGE[1]),
-                                 total_em=sec.quantity("emission_measure", em_unit, required=True, lo=0.0))
+                                 total_em=sec.quantity("total_em", em_unit, required=True, lo=0.0))
     elif model == "gaussian":
-        tp = sec.quantity("peak_temperature", u.K, required=True, lo=_T_RANGE[0], hi=_T_RANGE[1])
-        d = demmod.GaussianDEM(peak_logT=float(np.log10(tp.to_value(u.K))),
-                               width_logT=sec.number("width_dex", required=True, lo=0.0, lo_inclusive=False, hi=3.0),
-                               total_em=sec.quantity("emission_measure", em_unit, required=True, lo=0.0))
+        d = demmod.GaussianDEM(peak_logT=sec.number("peak_logT", required=True, lo=_LOGT_RANGE[0],
+                                                    hi=_LOGT_RANGE[1]),
+                               width_logT=sec.number("width_logT", required=True, lo=0.0, lo_inclusive=False, hi=3.0),
+                               total_em=sec.quantity("total_em", em_unit, required=True, lo=0.0))
     elif model == "power_law":
         d = demmod.PowerLawDEM(slope=sec.number("slope", required=True, lo=-20, hi=20),
                                peak_temperature=sec.quantity("peak_temperature", u.K, required=True,
                                                              lo=_T_RANGE[0], hi=_T_RANGE[1]),
-                               total_em=sec.quantity("emission_measure", em_unit, required=True, lo=0.0),
+                               total_em=sec.quantity("total_em", em_unit, required=True, lo=0.0),
                                min_temperature=sec.quantity("min_temperature", u.K, default=1e5 * u.K,
                                                             lo=_T_RANGE[0], hi=_T_RANGE[1]))
     elif model == "tabulated":

@@ -6,7 +6,7 @@ A :class:`CyclePhase` gives the corona at one phase of a cycle in one of three w
 * a list of components (``dem=[comp1, comp2, ...]``, summed into a
   :class:`~synthcorona.dem.MultiComponentDEM`: the usual 2T/3T fits of stellar coronae);
 * a measured band flux plus a temperature (``flux=``, ``band=``, ``temperature=``, optionally
-  ``width_dex=``): an isothermal DEM (or a Gaussian in log T of that width) whose emission
+  ``width_logT=``): an isothermal DEM (or a Gaussian in log T of that width) whose emission
   measure is solved so that its unabsorbed energy flux in ``band`` at the star's distance equals
   ``flux``. The flux is linear in the EM, so the solution is exact:
   :math:`EM = F_{meas} / F_1` with :math:`F_1` the band flux of the same shape with EM = 1 cm-3
@@ -53,7 +53,7 @@ class CyclePhase:
         Energy or wavelength limits of ``flux``.
     temperature : Quantity [K], optional
         Temperature of the isothermal DEM (or peak of the Gaussian DEM) solved from ``flux``.
-    width_dex : float, optional
+    width_logT : float, optional
         With ``flux``: Gaussian DEM of this width in log10 T (dex, (0, 3]) instead of isothermal.
     """
 
@@ -63,7 +63,7 @@ class CyclePhase:
     flux: u.Quantity | None = None
     band: Any = None
     temperature: u.Quantity | None = None
-    width_dex: float | None = None
+    width_logT: float | None = None
 
     def __post_init__(self):
         if not isinstance(self.label, str) or not self.label.strip():
@@ -88,8 +88,8 @@ class CyclePhase:
                     raise InputError(f"phase '{self.label}': dem must be a DEM or a non-empty list of DEMs")
             elif not isinstance(self.dem, DEM):
                 raise InputError(f"phase '{self.label}': dem={self.dem!r} is not a DEM model")
-            if self.width_dex is not None:
-                raise InputError(f"phase '{self.label}': width_dex applies only to a phase given by flux")
+            if self.width_logT is not None:
+                raise InputError(f"phase '{self.label}': width_logT applies only to a phase given by flux")
         else:
             missing = [k for k in ("flux", "band", "temperature") if getattr(self, k) is None]
             if missing:
@@ -98,11 +98,11 @@ class CyclePhase:
                       inclusive=False)
             Band.coerce(self.band, f"band of '{self.label}'")
             as_scalar(f"temperature of '{self.label}'", self.temperature, u.K, lo=1e4, hi=1e9, unit_label="K")
-            if self.width_dex is not None:
-                check_range(f"width_dex of '{self.label}'", float(self.width_dex), lo=0.0, hi=3.0, unit_label="dex",
+            if self.width_logT is not None:
+                check_range(f"width_logT of '{self.label}'", float(self.width_logT), lo=0.0, hi=3.0, unit_label="dex",
                             inclusive=True)
-                if float(self.width_dex) == 0.0:
-                    raise InputError(f"width_dex of '{self.label}' = 0: omit it for an isothermal DEM "
+                if float(self.width_logT) == 0.0:
+                    raise InputError(f"width_logT of '{self.label}' = 0: omit it for an isothermal DEM "
                                      "(valid range (0, 3] dex)")
 
     @property
@@ -132,7 +132,7 @@ class CyclePhase:
                 raise InputError(f"phase '{self.label}': the DEM has units {d.em_unit}; a volume DEM (cm-3) is "
                                  "needed for fluxes and count rates of a star")
             return d
-        return solve_emission_measure(self.flux, self.band, self.temperature, distance, width_dex=self.width_dex,
+        return solve_emission_measure(self.flux, self.band, self.temperature, distance, width_logT=self.width_logT,
                                       abundances=abundances, density=density, table=table)
 
 
@@ -151,16 +151,16 @@ def coincident_phases(phases) -> tuple[int, int] | None:
     return None
 
 
-def _shape_dem(temperature, width_dex, em) -> DEM:
+def _shape_dem(temperature, width_logT, em) -> DEM:
     t = as_quantity("temperature", temperature, u.K)
-    if width_dex is None:
+    if width_logT is None:
         return IsothermalDEM(temperature=t, total_em=em)
-    return GaussianDEM(peak_logT=float(np.log10(t.to_value(u.K))), width_logT=float(width_dex), total_em=em)
+    return GaussianDEM(peak_logT=float(np.log10(t.to_value(u.K))), width_logT=float(width_logT), total_em=em)
 
 
-def solve_emission_measure(flux, band, temperature, distance, width_dex=None, abundances="coronal", density=None,
+def solve_emission_measure(flux, band, temperature, distance, width_logT=None, abundances="coronal", density=None,
                            table=None) -> DEM:
-    """The isothermal (or Gaussian, ``width_dex``) DEM whose band flux equals a measured flux.
+    """The isothermal (or Gaussian, ``width_logT``) DEM whose band flux equals a measured flux.
 
     The unabsorbed band flux of a DEM of fixed shape is linear in its total emission measure,
     :math:`F = EM\\,F_1` with :math:`F_1` the flux for EM = 1 cm-3
@@ -176,7 +176,7 @@ def solve_emission_measure(flux, band, temperature, distance, width_dex=None, ab
         Temperature of the isothermal plasma (peak temperature of the Gaussian DEM).
     distance : Quantity [length]
         Distance of the star.
-    width_dex : float, optional
+    width_logT : float, optional
         Gaussian width in log10 T (dex); None: isothermal.
     abundances, density, table
         As for :func:`synthcorona.synthesis.band_flux`.
@@ -189,11 +189,11 @@ def solve_emission_measure(flux, band, temperature, distance, width_dex=None, ab
 
     f = as_scalar("flux", flux, FLUX_UNIT, lo=0.0, unit_label="erg s-1 cm-2", inclusive=False)
     band = Band.coerce(band, "band")
-    unit_dem = _shape_dem(temperature, width_dex, 1.0 * u.cm ** -3)
+    unit_dem = _shape_dem(temperature, width_logT, 1.0 * u.cm ** -3)
     f1 = float(band_flux(unit_dem, band, distance, table=table, abundances=abundances,
                          density=density).to_value(FLUX_UNIT))
     if not f1 > 0:
         raise InputError(f"band={band.range_text}: plasma at temperature={temperature} emits nothing in this band "
                          "(no lines or continuum of the table), so no emission measure can give flux="
                          f"{f:g} erg s-1 cm-2", argument="band")
-    return _shape_dem(temperature, width_dex, (f / f1) * u.cm ** -3)
+    return _shape_dem(temperature, width_logT, (f / f1) * u.cm ** -3)

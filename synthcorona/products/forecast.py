@@ -288,7 +288,7 @@ def _attrs(sc, table, inputs, n, seed, stat, bracket, mass_note, window) -> dict
         "statistic": stat,
         "false_alarm": float(inputs.observation.false_alarm),
         "target_probability": float(inputs.target_probability),
-        "min_mass_bracket_g": f"{bracket[0]:.6g} {bracket[1]:.6g}",
+        "min_mass_bracket_g": f"{float(bracket[0])!r} {float(bracket[1])!r}",  # exact: the search can be redone
         "mass_grid_note": mass_note,
         "best_band": sc.best_band(),
         "bin_width_s": float(sc.bin_width),

@@ -93,16 +93,20 @@ def wavelength_grid(limits, step, name: str = "wavelength range", step_name: str
 
 
 def band_table(dem, bands, distance, table, abundances, density) -> QTable:
-    """Energy flux at the observer (unabsorbed) and luminosity of ``dem`` in each band, one row per band."""
+    """Energy flux at the observer (unabsorbed) and luminosity of ``dem`` in each band, one row per band
+    (columns ``band``, ``flux``, ``luminosity``; without a ``distance`` (None) no ``flux`` column)."""
     from ..synthesis import band_flux, luminosity
 
     rows = []
     for b in bands:
         band = Band.coerce(b, "band")
+        lum = luminosity(dem, band=band, table=table, abundances=abundances, density=density).to(u.erg / u.s)
+        if distance is None:
+            rows.append((band.range_text, lum))
+            continue
         f = band_flux(dem, band=band, distance=distance, table=table, abundances=abundances, density=density)
-        lum = luminosity(dem, band=band, table=table, abundances=abundances, density=density)
-        rows.append((band.range_text, f.to(_FLUX), lum.to(u.erg / u.s)))
-    return QTable(rows=rows, names=("band", "flux", "luminosity"))
+        rows.append((band.range_text, f.to(_FLUX), lum))
+    return QTable(rows=rows, names=("band", "luminosity") if distance is None else ("band", "flux", "luminosity"))
 
 
 def _rate_table(inputs, table, density) -> QTable:
@@ -119,7 +123,7 @@ def _rate_table(inputs, table, density) -> QTable:
 
 
 def _meta(dem, distance, abundances, density, table) -> dict:
-    return {"dem": repr(dem), "distance": str(distance), "abundances": str(getattr(abundances, "name", abundances)),
+    return {"dem": repr(dem), "distance": str(distance) if distance is not None else "none (luminosities)", "abundances": str(getattr(abundances, "name", abundances)),
             "density": str(density), "table": str(table.path),
             "chianti_version": str(table.provenance.get("chianti_version")),
             "table_content_hash": str(table.provenance.get("content_hash"))}
@@ -173,7 +177,9 @@ def dem_spectrum(dem, distance, *, bands=DEFAULT_FLUX_BANDS, density=1e10 * u.cm
     ----------
     dem : DEM
         A single volume DEM (cm-3).
-    distance : Quantity [length]
+    distance : Quantity [length] or None
+        Distance of the observer. None: luminosities only (no ``flux`` column) and the spectrum as
+        a luminosity density (erg s-1 per Angstrom).
     bands : sequence of Band, text or Quantity pairs
         Bands of the flux table (default :data:`DEFAULT_FLUX_BANDS`).
     density : Quantity [cm-3]

@@ -2,7 +2,6 @@
 import pathlib
 
 import astropy.units as u
-import numpy as np
 import pytest
 
 from synthcorona.cli import main
@@ -37,7 +36,7 @@ def test_cli_end_to_end_matches_api(tmp_path, capsys):
     star, dens = inputs.star, inputs.density
     assert ds.sizes["phase"] == 6 and list(ds["label"].values) == [p.label for p in inputs.phases]
     # Independent numbers for the first phase (a Gaussian DEM in the file).
-    dem0 = GaussianDEM(np.log10(1.6e6), 0.2, 6e50 * u.cm ** -3)
+    dem0 = GaussianDEM(6.2041, 0.2, 6e50 * u.cm ** -3)   # peak_logT = 6.2041 (1.6 MK) in the file
     f0 = band_flux(dem0, [0.1, 2.4] * u.keV, 3 * u.pc, density=2e9 * u.cm ** -3).to_value(FLUX)
     assert ds["flux"].sel(band="0.1-2.4 keV").values[0] == pytest.approx(f0, rel=1e-9)
     assert per["flux[0.1-2.4 keV]"][0].to_value(FLUX) == pytest.approx(f0, rel=1e-9)

@@ -11,7 +11,7 @@ from synthcorona.cli import main
 
 def test_emission_writes_files_matching_the_api(tmp_path, table, capsys):
     rc = main(["emission", "--out", str(tmp_path), "--band", "0.1-2.4 keV", "--band", "171-175 Angstrom",
-               "--peak-logT", "6.4", "--width-logT", "0.2", "--em", "2e51 cm-3", "--distance", "5 pc",
+               "--peak-logT", "6.4", "--width-logT", "0.2", "--total-em", "2e51 cm-3", "--distance", "5 pc",
                "--wavelength-range", "100", "200", "--wavelength-bin", "0.05 Angstrom"])
     assert rc == 0
     qt = QTable.read(tmp_path / "band_fluxes.ecsv")
@@ -27,6 +27,34 @@ def test_emission_writes_files_matching_the_api(tmp_path, table, capsys):
     assert spec.attrs["table_content_hash"] == table.provenance["content_hash"]
     assert (tmp_path / "spectrum.png").stat().st_size > 1000
     assert "flux" in capsys.readouterr().out
+    # the CSV the user guide promises, next to the ECSV, with the same numbers
+    csv = QTable.read(tmp_path / "band_fluxes.csv", format="ascii.csv")
+    np.testing.assert_allclose(np.asarray(csv[csv.colnames[1]], dtype=float), qt["flux"].value, rtol=1e-12)
+
+
+def test_without_distance_only_luminosities_are_written(tmp_path, table, capsys):
+    rc = main(["emission", "--out", str(tmp_path), "--band", "0.1-2.4 keV", "--temperature", "4 MK",
+               "--total-em", "1e51 cm-3", "--wavelength-range", "100", "110", "--wavelength-bin", "0.5 Angstrom"])
+    assert rc == 0
+    qt = QTable.read(tmp_path / "band_fluxes.ecsv")
+    assert "flux" not in qt.colnames
+    dem = sc.IsothermalDEM(4 * u.MK, 1e51 * u.cm ** -3)
+    lum = sc.luminosity(dem, band=(0.1, 2.4) * u.keV, table=table, density=1e10 * u.cm ** -3)
+    assert qt["luminosity"][0].to_value(u.erg / u.s) == pytest.approx(lum.to_value(u.erg / u.s), rel=1e-12)
+    spec = xr.load_dataarray(tmp_path / "spectrum.nc", engine="h5netcdf")
+    # the spectrum is a luminosity density: synthesize() without a distance
+    ref = sc.synthesize(dem, wavelength=np.arange(100.0, 110.0, 0.5) * u.AA, table=table,
+                        density=1e10 * u.cm ** -3)
+    np.testing.assert_allclose(spec.values, ref.values, rtol=1e-12)
+    assert u.Unit(spec.attrs["units"]).is_equivalent(u.erg / u.s / u.AA)
+    assert "luminosities only" in capsys.readouterr().out
+
+
+def test_former_em_option_is_an_error_naming_the_new_one(tmp_path, capsys):
+    with pytest.raises(SystemExit) as exc:
+        main(["emission", "--out", str(tmp_path), "--em", "1e51 cm-3"])
+    assert exc.value.code == 2
+    assert "--em was renamed --total-em" in capsys.readouterr().err
 
 
 @pytest.mark.parametrize("limits", [
@@ -48,7 +76,7 @@ def test_wavelength_range_forms_give_the_same_spectrum(tmp_path, limits):
 
 @pytest.mark.parametrize("args, text", [
     (["--distance", "10 g"], "--distance"),
-    (["--em", "lots"], "--em"),
+    (["--total-em", "lots"], "--total-em"),
     (["--band", "0.1 2.4 keV"], "--band"),
     (["--band", "2.4-0.1 keV"], "--band"),
     (["--density", "1e20 cm-3"], "density"),

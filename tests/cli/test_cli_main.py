@@ -54,3 +54,38 @@ def test_every_subcommand_writes_to_out():
     for name in ("forecast", "spectrum", "cycle", "emission", "build-table"):
         opts = {o for a in sub.choices[name]._actions for o in a.option_strings}
         assert "--out" in opts and "--output" not in opts and "-o" not in opts, name
+
+
+def _subparsers():
+    parser = build_parser()
+    return next(a for a in parser._actions if a.dest == "command").choices
+
+
+def test_folder_writing_subcommands_default_to_their_name_plus_out():
+    # one rule for the default output folder: <subcommand>_out
+    for name, sp in _subparsers().items():
+        out = next((a for a in sp._actions if "--out" in a.option_strings), None)
+        if out is None or name == "build-table":      # build-table writes one file: --out FILE is required
+            continue
+        assert out.default == f"{name}_out", name
+
+
+def test_help_texts_are_plain_text():
+    # what --help shows carries no reStructuredText markup (the descriptions are not module docstrings)
+    markup = ("``", ":func:", ":mod:", ":class:", ":data:", ":meth:", ":math:", ":doc:", ".. ")
+    texts = {"synthcorona": build_parser().format_help()}
+    texts.update({name: sp.format_help() for name, sp in _subparsers().items()})
+    for name, text in texts.items():
+        for m in markup:
+            assert m not in text, (name, m)
+
+
+def test_list_help_names_every_choice(capsys):
+    from synthcorona.cli.list_items import WHAT
+
+    with pytest.raises(SystemExit):
+        main(["list", "--help"])
+    text = capsys.readouterr().out
+    assert set(WHAT) == {"instruments", "bands", "abundances", "dems", "table", "all"}
+    for choice, what in WHAT.items():
+        assert f"  {choice} " in text and what.split()[1] in text, choice

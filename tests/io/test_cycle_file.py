@@ -83,3 +83,13 @@ def test_path_with_equals_sign_is_a_path(tmp_path):
     assert inputs.source == str(f) and inputs.title == "t" and len(inputs.phases) == 2
     with pytest.raises(ScenarioError, match=r"run=1/none=.toml: file not found"):
         read_cycle_file(str(folder / "none=.toml"))
+
+
+
+def test_flux_phase_width_is_width_logT_and_the_former_key_is_an_error():
+    # the Gaussian width of a flux phase has GaussianDEM's parameter name, width_logT
+    flux_phase = 'temperature = "3 MK"\n'
+    inputs = read_cycle_file(text=MINIMAL.replace(flux_phase, flux_phase + "width_logT = 0.2\n"), name="ok.toml")
+    assert inputs.phases[1].width_logT == 0.2
+    with pytest.raises(ScenarioError, match=r"bad.toml: \[phase\[1\]\] width_dex = 0.2: renamed: write width_logT = 0.2"):
+        read_cycle_file(text=MINIMAL.replace(flux_phase, flux_phase + "width_dex = 0.2\n"), name="bad.toml")

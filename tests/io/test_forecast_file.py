@@ -24,9 +24,9 @@ density = "2e9 cm-3"
 
 [corona.dem]
 model = "gaussian"
-peak_temperature = "2 MK"
-width_dex = 0.2
-emission_measure = "1e51 cm-3"
+peak_logT = 6.301
+width_logT = 0.2
+total_em = "1e51 cm-3"
 
 [cme]
 mass = "1e16 g"
@@ -75,6 +75,16 @@ def test_values_and_units(tmp_path):
     assert fi.source.endswith("scen.toml") and "[cme]" in fi.raw_text and fi.scenario is None
     # default mass grid: 9 masses from M/30 to 3 M, log-spaced (documented default)
     np.testing.assert_allclose(fi.mass_grid.to_value(u.g), np.geomspace(1e16 / 30, 3e16, 9), rtol=1e-12)
+
+
+def test_variability_table_sets_the_red_noise(tmp_path):
+    from synthcorona.dimming.noise import RedNoise
+
+    assert _read(tmp_path, BASE).observation.red_noise is None     # no table: Poisson noise only
+    fi = _read(tmp_path, BASE + '\n[variability]\namplitude = 0.05\ntimescale = "2 h"\n')
+    # 2 h = 7200 s (SI brochure)
+    assert fi.observation.red_noise == RedNoise(0.05, 7200 * u.s)
+    assert fi.observation.red_noise.tau_s == pytest.approx(7200.0, rel=1e-12)
 
 
 def test_mass_grid_forms(tmp_path):
@@ -146,8 +156,8 @@ MALFORMED = [
     ("distance 0", ('distance = "5 pc"', 'distance = "0 pc"'), "[star] distance", "valid range"),
     ("non-numeric", ('mass = "1e16 g"', 'mass = "lots of g"'), "[cme] mass", "cannot read"),
     ("wrong type", ("realisations = 1000", 'realisations = "many"'), "[montecarlo] realisations", "integer"),
-    ("wrong type table", ('\n[corona.dem]\nmodel = "gaussian"\npeak_temperature = "2 MK"\nwidth_dex = 0.2\n'
-                          'emission_measure = "1e51 cm-3"\n', 'dem = "gaussian"\n'), "[corona] dem", "must be a table"),
+    ("wrong type table", ('\n[corona.dem]\nmodel = "gaussian"\npeak_logT = 6.301\nwidth_logT = 0.2\n'
+                          'total_em = "1e51 cm-3"\n', 'dem = "gaussian"\n'), "[corona] dem", "must be a table"),
     ("bad flare class", ('energy = "1e32 erg"', 'class = "Z3"'), "[flare] class", "flare class"),
     ("energy and class", ('energy = "1e32 erg"', 'energy = "1e32 erg"\nclass = "M1"'), "[flare] class", "not both"),
     ("unknown generic", ('generic = "sc-fe9"', 'generic = "sc-fe99"'), "[instrument[0]] generic", "available"),
@@ -160,6 +170,20 @@ MALFORMED = [
     ("escape fraction", ('source_temperature = "2 MK"', 'source_temperature = "2 MK"\nescape_fraction = 1.5'),
      "[cme] escape_fraction", "valid range"),
     ("dem model", ('model = "gaussian"', 'model = "lumpy"'), "[corona.dem] model", "one of"),
+    ("former dem key", ('total_em = "1e51 cm-3"', 'emission_measure = "1e51 cm-3"'), "[corona.dem] emission_measure",
+     "renamed: write total_em"),
+    ("misspelt key", ('pre_event = "1 h"', 'pre_evnt = "1 h"'), "[observation] pre_event",
+     "required key is missing (found 'pre_evnt'"),
+    ("variability amplitude", ("[montecarlo]", '[variability]\namplitude = 1.5\ntimescale = "1 h"\n\n[montecarlo]'),
+     "[variability] amplitude", "valid range [0, 1]"),
+    ("variability timescale", ("[montecarlo]", '[variability]\namplitude = 0.1\ntimescale = "0 s"\n\n[montecarlo]'),
+     "[variability] timescale", "valid range (0, 1e+09] s"),
+    ("variability without unit", ("[montecarlo]", '[variability]\namplitude = 0.1\ntimescale = 3600\n\n[montecarlo]'),
+     "[variability] timescale", "needs a unit"),
+    ("variability misspelt", ("[montecarlo]", '[variability]\namplitude = 0.1\ntimescale = "1 h"\ntimescal = 1\n\n'
+                                              '[montecarlo]'), "[variability] timescal", "did you mean 'timescale'?"),
+    ("variability incomplete", ("[montecarlo]", '[variability]\namplitude = 0.1\n\n[montecarlo]'),
+     "[variability] timescale", "required key is missing"),
 ]
 
 

@@ -21,23 +21,20 @@ def test_units_are_converted_by_astropy():
     s.finish()
 
 
+G = 'model = "gaussian"\npeak_logT = 6.5\nwidth_logT = 0.2\ntotal_em = "1e51 cm-3"\n'
+
+
 @pytest.mark.parametrize("text, key, phrase", [
-    ('model = "gaussian"\npeak_temperature = "3 MK"\nwidth_dex = 0.2\nemission_measure = "1e51"\n',
-     "emission_measure", "needs a unit"),
-    ('model = "gaussian"\npeak_temperature = "3 pc"\nwidth_dex = 0.2\nemission_measure = "1e51 cm-3"\n',
-     "peak_temperature", "not convertible"),
-    ('model = "gaussian"\npeak_temperature = 3e6\nwidth_dex = 0.2\nemission_measure = "1e51 cm-3"\n',
-     "peak_temperature", "needs a unit"),
-    ('model = "gaussian"\npeak_temperature = "3 MK"\nwidth_dex = "wide"\nemission_measure = "1e51 cm-3"\n',
-     "width_dex", "must be a number"),
-    ('model = "gaussian"\npeak_temperature = "3 MK"\nwidth_dex = -0.1\nemission_measure = "1e51 cm-3"\n',
-     "width_dex", "valid range"),
-    ('model = "gaussian"\nwidth_dex = 0.2\nemission_measure = "1e51 cm-3"\n', "peak_temperature", "missing"),
-    ('model = "gaussian"\npeak_temperature = "3 MK"\nwidth_dex = 0.2\nemission_measure = "1e51 cm-3"\nwidht = 1\n',
-     "widht", "unknown key"),
+    (G.replace('"1e51 cm-3"', '"1e51"'), "total_em", "needs a unit"),
+    (G.replace("6.5", '"3 MK"'), "peak_logT", "must be a number"),
+    (G.replace("6.5", "9.5"), "peak_logT", "valid range [4, 9]"),
+    (G.replace("0.2", '"wide"'), "width_logT", "must be a number"),
+    (G.replace("0.2", "-0.1"), "width_logT", "valid range"),
+    (G.replace("peak_logT = 6.5\n", ""), "peak_logT", "missing"),
+    (G + "widht = 1\n", "widht", "unknown key; did you mean 'width_logT'?"),
+    (G.replace("total_em", "total_emm"), "total_em", "required key is missing (found 'total_emm'"),
     ('model = "lorentzian"\n', "model", "must be one of"),
-    ('model = "isothermal"\ntemperature = "2 MK"\nemission_measure = "-1e50 cm-3"\n', "emission_measure",
-     "valid range"),
+    ('model = "isothermal"\ntemperature = "2 MK"\ntotal_em = "-1e50 cm-3"\n', "total_em", "valid range"),
 ])
 def test_bad_dem_keys_are_named(text, key, phrase):
     with pytest.raises(ScenarioError) as exc:
@@ -47,14 +44,56 @@ def test_bad_dem_keys_are_named(text, key, phrase):
     assert key in msg and phrase in msg
 
 
+@pytest.mark.parametrize("text, old, hint", [
+    (G.replace("total_em", "emission_measure"), "emission_measure", 'write total_em = "1e51 cm-3"'),
+    (G.replace("width_logT", "width_dex"), "width_dex", "write width_logT = 0.2"),
+    # log10(2e6) = 6.30103 (plain arithmetic)
+    (G.replace("peak_logT = 6.5", 'peak_temperature = "2 MK"'), "peak_temperature", "write peak_logT = 6.301"),
+    ('model = "isothermal"\ntemperature = "2 MK"\nemission_measure = "1e50 cm-3"\n', "emission_measure",
+     "write total_em"),
+])
+def test_former_dem_keys_are_errors_naming_the_new_key(text, old, hint):
+    # the DEM keys of a file are the DEM classes' parameter names; the former spellings are never read
+    with pytest.raises(ScenarioError) as exc:
+        _dem(text)
+    msg = str(exc.value)
+    assert msg.startswith(f"t.toml: [corona.dem] {old} = ") and "renamed" in msg and hint in msg
+
+
+def test_dem_keys_are_the_python_parameter_names():
+    import inspect
+
+    from synthcorona.io.toml import DEM_MODELS
+
+    for model, cls in (("isothermal", sc.IsothermalDEM), ("gaussian", sc.GaussianDEM), ("power_law", sc.PowerLawDEM)):
+        params = set(inspect.signature(cls).parameters)
+        keys = {k.strip().split(" ")[0] for k in DEM_MODELS[model].split(",")}
+        assert keys == params, model
+
+
+def test_unknown_key_suggests_the_nearest_valid_key():
+    s = load_toml(text='[observation]\nexposur = "1 h"\nbin_width = "60 s"\n', name="t.toml")
+    o = s.section("observation")
+    o.quantity("exposure", u.s)
+    o.quantity("bin_width", u.s)
+    o.number("false_alarm", default=0.01)
+    with pytest.raises(ScenarioError) as exc:
+        o.finish()
+    assert str(exc.value) == "t.toml: [observation] exposur: unknown key; did you mean 'exposure'?"
+    s2 = load_toml(text='[observation]\nzzz = 1\n', name="t.toml").section("observation")
+    s2.quantity("exposure", u.s)
+    with pytest.raises(ScenarioError, match=r"\[observation\] zzz: unknown key; valid keys here: exposure$"):
+        s2.finish()
+
+
 def test_gaussian_and_component_dems_match_the_api():
-    d = _dem('model = "gaussian"\npeak_temperature = "3 MK"\nwidth_dex = 0.2\nemission_measure = "1e51 cm-3"\n')
-    ref = sc.GaussianDEM(peak_logT=np.log10(3e6), width_logT=0.2, total_em=1e51 * u.cm ** -3)
+    d = _dem('model = "gaussian"\npeak_logT = 6.477\nwidth_logT = 0.2\ntotal_em = "1e51 cm-3"\n')
+    ref = sc.GaussianDEM(peak_logT=6.477, width_logT=0.2, total_em=1e51 * u.cm ** -3)
     logT = np.arange(5.0, 8.0, 0.05)
     np.testing.assert_allclose(d.em_weights(logT).value, ref.em_weights(logT).value, rtol=1e-12)
     m = _dem('model = "components"\n[[corona.dem.component]]\nmodel = "isothermal"\ntemperature = "2 MK"\n'
-             'emission_measure = "1e50 cm-3"\n[[corona.dem.component]]\nmodel = "gaussian"\n'
-             'peak_temperature = "8 MK"\nwidth_dex = 0.1\nemission_measure = "3e50 cm-3"\n')
+             'total_em = "1e50 cm-3"\n[[corona.dem.component]]\nmodel = "gaussian"\n'
+             'peak_logT = 6.9\nwidth_logT = 0.1\ntotal_em = "3e50 cm-3"\n')
     # total EM of a sum of components is the sum of their EMs
     assert m.em_weights(logT).sum().to_value(u.cm ** -3) == pytest.approx(4e50, rel=1e-3)
 

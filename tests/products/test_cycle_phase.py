@@ -22,7 +22,7 @@ FLUX = u.erg / u.s / u.cm ** 2
 def test_flux_phase_reproduces_measured_flux(width):
     star = Star(distance=7 * u.pc)
     band = [0.1, 2.4] * u.keV
-    p = CyclePhase("rise", 0.3, flux=4.2e-12 * FLUX, band=band, temperature=2.7 * u.MK, width_dex=width)
+    p = CyclePhase("rise", 0.3, flux=4.2e-12 * FLUX, band=band, temperature=2.7 * u.MK, width_logT=width)
     dem = p.resolve(star.distance)
     assert isinstance(dem, GaussianDEM if width else IsothermalDEM)
     assert band_flux(dem, band, star.distance).to_value(FLUX) == pytest.approx(4.2e-12, rel=1e-6)
@@ -44,7 +44,7 @@ def test_solve_emission_measure_takes_any_band_form():
     (dict(phase=0.1), "either dem="),
     (dict(phase=0.1, flux=1e-12 * FLUX, band=[0.1, 2.4] * u.keV), "temperature"),
     (dict(phase=0.1, flux=1e-12 * FLUX, band=[2.4, 0.1] * u.keV, temperature=2 * u.MK), "not below"),
-    (dict(phase=0.1, dem=IsothermalDEM(2 * u.MK, 1e50 * u.cm ** -3), width_dex=0.2), "width_dex"),
+    (dict(phase=0.1, dem=IsothermalDEM(2 * u.MK, 1e50 * u.cm ** -3), width_logT=0.2), "width_logT"),
 ])
 def test_bad_phases_are_refused(kwargs, text):
     with pytest.raises(InputError, match=re.escape(text)):

@@ -28,7 +28,7 @@ def same_scenario():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
         return DimmingScenario(Star(5 * u.pc, nh=1e18 * u.cm ** -2),
-                               Corona(GaussianDEM(np.log10(2e6), 0.2, 1e51 * u.cm ** -3), density=2e9 * u.cm ** -3),
+                               Corona(GaussianDEM(6.301, 0.2, 1e51 * u.cm ** -3), density=2e9 * u.cm ** -3),
                                CME(3e17 * u.g, source_temperature=2 * u.MK), Flare(1e31 * u.erg), "sc-fe9",
                                Observation(8 * u.h, 300 * u.s, 2 * u.h, false_alarm=0.05))
 
@@ -139,3 +139,21 @@ def test_table_argument_is_used_and_recorded(small_forecast, tmp_path, table):
     assert other.attrs["table_file"] == str(copy.resolve()) and ds.attrs["table_file"] == str(table.path)
     np.testing.assert_array_equal(other["depth"].values, ds["depth"].values)   # same content, same numbers
     assert table_provenance(copy)["table_content_hash"] == table.provenance["content_hash"]
+
+
+def test_variability_table_reaches_the_forecast():
+    # the same file with and without a [variability] table (damped random walk, Kelly, Bechtold & Siemiginowska
+    # 2009): the variability raises the calibrated threshold and lowers P(detect); the forecast records it
+    text = (DATA / "small_forecast.toml").read_text()
+    n = 1000
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        plain = run_forecast(read_forecast_file(text=text, name="plain.toml"), realisations=n)
+        varied = run_forecast(read_forecast_file(text=text + '\n[variability]\namplitude = 0.1\ntimescale = "1 h"\n',
+                                                 name="varied.toml"), realisations=n)
+    a, b = float(plain["probability"].values[0]), float(varied["probability"].values[0])
+    assert b < a - 3 * math.sqrt(a * (1 - a) / n + b * (1 - b) / n), (a, b)
+    assert float(varied["threshold"].values[0]) > float(plain["threshold"].values[0])
+    assert np.all(varied["probability_vs_mass"].values <= plain["probability_vs_mass"].values)
+    assert varied.attrs["red_noise"] == "damped random walk, amplitude 0.1, timescale 3600 s"
+    assert plain.attrs["red_noise"] == "none"
