@@ -2,11 +2,21 @@
 
 Writes band_fluxes.ecsv (energy flux at the observer and luminosity per band), spectrum.nc (flux
 density at the observer over ``--wavelength-range`` in bins of ``--wavelength-bin``) and
-spectrum.png; the numbers come from :func:`synthcorona.products.spectrum.dem_spectrum`.
+spectrum.png, and manifest.json (every file with its SHA-256; the output folder is handled as for
+``forecast``); the numbers come from :func:`synthcorona.products.spectrum.dem_spectrum`.
 """
 from __future__ import annotations
 
-from .common import add_table_option, load_table, output_folder, parse_band, parse_quantity, parse_range
+from .common import (
+    add_table_option,
+    check_out,
+    load_table,
+    open_output,
+    output_notes,
+    parse_band,
+    parse_quantity,
+    parse_range,
+)
 
 NAME = "emission"
 HELP = "spectrum and band fluxes of a DEM (Gaussian in log T or isothermal)"
@@ -31,12 +41,14 @@ def add_arguments(p) -> None:
     p.add_argument("--wavelength-bin", default="0.02 Angstrom",
                    help="bin width of the spectrum (default '0.02 Angstrom')")
     add_table_option(p)
-    p.add_argument("--out", default="synthcorona_out", help="output folder (default 'synthcorona_out')")
+    p.add_argument("--out", default="synthcorona_out", help="output folder (default 'synthcorona_out'; checked before computing, locked, "
+                                                          "replaced whole; manifest.json lists the files)")
 
 
 def run(args) -> int:
     """Compute and write the spectrum and band fluxes of the DEM; returns 0."""
     from ..dem import GaussianDEM, IsothermalDEM
+    from ..io.manifest import table_entry
     from ..io.writers import write_figure, write_netcdf, write_table
     from ..plotting.spectrum import plot_spectrum
     from ..products.spectrum import DEFAULT_FLUX_BANDS, dem_spectrum
@@ -51,17 +63,21 @@ def run(args) -> int:
     bands = [parse_band(b) for b in args.band] if args.band else list(DEFAULT_FLUX_BANDS)
     limits = parse_range(args.wavelength_range, args.wavelength_unit, "--wavelength-range")
     step = parse_quantity(args.wavelength_bin, "Angstrom", "--wavelength-bin")
+    check_out(args)
     table = load_table(args)
-    res = dem_spectrum(dem, dist, bands=bands, density=dens, abundances=args.abundances, wavelength_range=limits,
-                       wavelength_bin=step, table=table)
-    out = output_folder(args.out)
-    written = write_table(res.fluxes, out / "band_fluxes.ecsv")
-    written.append(write_netcdf(res.spectrum, out / "spectrum.nc"))
-    written.append(write_figure(plot_spectrum(res.spectrum, title=f"{dem!r} at {dist}"), out / "spectrum.png",
-                                dpi=120))
+    with open_output(args) as out:
+        res = dem_spectrum(dem, dist, bands=bands, density=dens, abundances=args.abundances,
+                           wavelength_range=limits, wavelength_bin=step, table=table)
+        out.record(table=table_entry(table))
+        written = write_table(res.fluxes, out.path("band_fluxes.ecsv"))
+        written.append(write_netcdf(res.spectrum, out.path("spectrum.nc")))
+        written.append(write_figure(plot_spectrum(res.spectrum, title=f"{dem!r} at {dist}"), out.path("spectrum.png"),
+                                    dpi=120))
     print(f"DEM: {dem!r}; distance {dist}; abundances {args.abundances}; n_e {dens}")
     print(f"table: {table.path.name} (CHIANTI {table.provenance.get('chianti_version')}, see provenance)")
     for r in res.fluxes:
         print(f"  {r['band']:>22s}: flux {r['flux'].value:10.3e} erg s-1 cm-2   L {r['luminosity'].value:10.3e} erg s-1")
-    print(f"wrote {', '.join(str(p) for p in written)}")
+    print(f"wrote {', '.join(str(out.target / p.name) for p in written)}")
+    for line in output_notes(out):
+        print(line)
     return 0
