@@ -4,7 +4,10 @@ Reads a forecast scenario (TOML; keys in docs/scenario_reference.md) and writes 
 folder: forecast.nc (every result, units and provenance in attrs), bands.ecsv/.csv (depth,
 duration, flare contamination, P(detect), minimum detectable mass per band),
 detection_vs_mass.ecsv/.csv, PNG figures (light curves with and without the CME, P(detect) vs
-mass, temperature responses) and a one-page report (Markdown and/or HTML).
+mass, temperature responses), a one-page report (Markdown and/or HTML) and manifest.json (every
+file with its size and SHA-256, the scenario's SHA-256, the seed, the times and the command line).
+The folder is checked before anything is computed, locked while the run lasts, and receives the
+files only when all of them are complete (:class:`synthcorona.io.output_folder.OutputRun`).
 """
 from __future__ import annotations
 

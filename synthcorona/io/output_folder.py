@@ -80,6 +80,7 @@ import glob
 import json
 import os
 import pathlib
+import shlex
 import shutil
 import socket
 import sys
@@ -363,7 +364,7 @@ class _LockedRun:
         self._created = self._make_folder()
         try:
             info = {"pid": os.getpid(), "host": socket.gethostname(), "started_utc": self.started,
-                    "command": " ".join(self.argv)}
+                    "command": shlex.join(self.argv)}
             self._fd = _acquire(self._lock_path, info, self._text, self.option)
             self.recovered = clean_up_killed_runs(self._folder, self._prefix)
             try:
