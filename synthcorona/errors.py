@@ -12,11 +12,15 @@ file and key), so that callers decide what to do from fields, never from the mes
 * :class:`DependencyError` -- an optional dependency (fiasco for the table builder) is not installed.
 * :class:`BracketError` -- a root search was given a bracket that does not straddle the target.
 * :class:`CliError` -- a user mistake on the command line (one line, exit status 2).
+* :class:`OutputFolderError` / :class:`OutputFolderBusy` -- an output folder that cannot be written, or that
+  another run is writing (:mod:`synthcorona.io.output_folder`).
+* :class:`RunInterrupted` -- a run stopped by SIGINT or SIGTERM (:mod:`synthcorona.io.interrupts`).
 """
 from __future__ import annotations
 
-__all__ = ["InputError", "ScenarioError", "MemoryBudgetError", "TableFileError", "ChiantiNotFoundError", "InstrumentFileError",
-           "InstrumentFileWarning", "BracketError", "CliError", "DependencyError"]
+__all__ = ["InputError", "ScenarioError", "MemoryBudgetError", "TableFileError", "ChiantiNotFoundError",
+    "InstrumentFileError", "InstrumentFileWarning", "BracketError", "CliError", "DependencyError",
+    "OutputFolderError", "OutputFolderBusy", "RunInterrupted"]
 
 
 class InputError(ValueError):
@@ -149,3 +153,78 @@ class BracketError(InputError):
 
 class CliError(Exception):
     """A user mistake on the command line (printed as one line, exit status 2)."""
+
+
+class OutputFolderError(InputError):
+    """An output folder (or output file) that a run cannot use: an empty name, a path that exists and is
+    not a folder, a folder or parent that is not writable.
+
+    Attributes
+    ----------
+    path : str
+        The path as given.
+    option : str
+        The command-line option or argument that gave it (e.g. ``"--out"``).
+    reason : str
+        Why it cannot be used (the end of the message).
+    """
+
+    def __init__(self, message: str, *, path: str, option: str = "--out", reason: str = ""):
+        super().__init__(message, argument=option)
+        self.path = path
+        self.option = option
+        self.reason = reason
+
+
+class OutputFolderBusy(OutputFolderError):
+    """Another run holds the lock of the output folder.
+
+    Attributes
+    ----------
+    pid : int or None
+        Process id of the other run (None when its lock file was not yet filled in).
+    host : str
+        Host name of the other run ("" when unknown).
+    started : str
+        Its start time, ISO 8601 UTC ("" when unknown).
+    command : str
+        Its command line ("" when unknown).
+    """
+
+    def __init__(self, message: str, *, path: str, option: str = "--out", pid: int | None = None, host: str = "",
+                 started: str = "", command: str = ""):
+        super().__init__(message, path=path, option=option, reason="in use by another run")
+        self.pid = pid
+        self.host = host
+        self.started = started
+        self.command = command
+
+
+class RunInterrupted(BaseException):
+    """A run was stopped by SIGINT or SIGTERM (raised by the handlers of
+    :func:`synthcorona.io.interrupts.raise_on_interrupts`).
+
+    A ``BaseException``, like ``KeyboardInterrupt``, so that no ``except Exception`` on the way swallows
+    it; every ``with`` and ``finally`` block on the way still runs (temporary files removed, locks
+    released).
+
+    Attributes
+    ----------
+    signum : int
+        The signal number.
+    signal_name : str
+        Its name (``"SIGINT"``, ``"SIGTERM"``).
+    exit_status : int
+        128 + ``signum``: 130 for SIGINT, 143 for SIGTERM (the shell's convention).
+    results_written : bool or None
+        Set by :class:`synthcorona.io.output_folder.OutputRun`: True if the run's files were already
+        in place when the signal took effect, False if the output folder keeps its previous
+        contents; None when no output folder was involved.
+    """
+
+    def __init__(self, signum: int, signal_name: str = ""):
+        super().__init__(signum)
+        self.signum = int(signum)
+        self.signal_name = signal_name or f"signal {signum}"
+        self.exit_status = 128 + int(signum)
+        self.results_written: bool | None = None

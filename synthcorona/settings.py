@@ -14,6 +14,10 @@ Four environment variables change where synthcorona finds its inputs and how muc
                               available when the computation starts (:mod:`synthcorona.memory`)
 ============================= ======================================================================
 
+One more exists for the tests only: ``SYNTHCORONA_TEST_PAUSE`` makes a command-line run stop for a
+while at one step of writing its output folder (:func:`pause_for_tests`), so that a test can interrupt
+it at a known point.
+
 Each function reads the variable when called (so that a test or a long-lived session can change
 it); an empty value counts as unset. Library code takes explicit arguments (``table=``,
 ``chianti=``, ``scheduler=``) first and falls back to these only when the argument is absent.
@@ -24,10 +28,8 @@ import os
 import pathlib
 import re
 
-from .errors import InputError
-
 __all__ = ["TABLE_ENV", "CHIANTI_ENV", "SCHEDULER_ENV", "MEMORY_BUDGET_ENV", "table_path", "chianti_path",
-           "scheduler_address", "memory_budget_setting", "parse_bytes"]
+    "scheduler_address", "memory_budget_setting", "parse_bytes", "TEST_PAUSE_ENV", "pause_for_tests"]
 
 #: Environment variable naming an emissivity table file.
 TABLE_ENV = "SYNTHCORONA_TABLE"
@@ -42,6 +44,8 @@ MEMORY_BUDGET_ENV = "SYNTHCORONA_MEMORY_BUDGET"
 _BYTE_UNITS = {"": 1, "b": 1, "byte": 1, "bytes": 1, "kb": 10**3, "mb": 10**6, "gb": 10**9, "tb": 10**12,
                "kib": 2**10, "mib": 2**20, "gib": 2**30, "tib": 2**40}
 _BYTES_RE = re.compile(r"^\s*([0-9]*\.?[0-9]+(?:[eE][+-]?[0-9]+)?)\s*([A-Za-z]*)\s*$")
+#: Environment variable for tests: pause a run at one step of writing its output (:func:`pause_for_tests`).
+TEST_PAUSE_ENV = "SYNTHCORONA_TEST_PAUSE"
 
 
 def _value(name: str) -> str | None:
@@ -87,3 +91,24 @@ def memory_budget_setting() -> int | None:
     """The memory budget in bytes from ``$SYNTHCORONA_MEMORY_BUDGET`` (see :func:`parse_bytes`), or None when unset."""
     v = _value(MEMORY_BUDGET_ENV)
     return parse_bytes(v) if v else None
+def pause_for_tests() -> tuple[str, float] | None:
+    """The step and duration of ``$SYNTHCORONA_TEST_PAUSE`` (for tests only), or None when unset.
+
+    The value is ``STEP`` (a pause of 120 s) or ``STEP=SECONDS``; the steps are those of
+    :class:`synthcorona.io.output_folder.OutputRun`: ``locked`` (the folder is locked, nothing is
+    computed yet), ``write:NAME`` (the run is about to write the file NAME into its staging folder;
+    the files before it are complete there), ``commit`` (every file is complete in the staging folder,
+    nothing is moved yet) and ``move:NAME`` (inside the commit: the files before NAME are already in
+    the output folder). At that step the run prints ``synthcorona: test pause at STEP (pid N)`` on
+    standard error and sleeps. A value that cannot be read is ignored.
+    """
+    v = _value(TEST_PAUSE_ENV)
+    if v is None:
+        return None
+    step, sep, seconds = v.rpartition("=")
+    if not sep:
+        return v, 120.0
+    try:
+        return step, max(0.0, float(seconds))
+    except ValueError:
+        return None

@@ -71,3 +71,33 @@ def small_forecast():
         warnings.simplefilter("ignore", RuntimeWarning)
         inputs = read_forecast_file(DATA / "small_forecast.toml")
         return inputs, run_forecast(inputs)
+
+
+@pytest.fixture
+def unwritable_folder(tmp_path):
+    """An existing folder this process cannot write into: mode 0555 for an ordinary user; for root (who
+    writes anywhere) the immutable attribute (``chattr +i``), else the test is skipped."""
+    import subprocess
+
+    folder = tmp_path / "read_only"
+    folder.mkdir()
+    undo = None
+    if os.geteuid() == 0:
+        try:
+            done = subprocess.run(["chattr", "+i", str(folder)], capture_output=True, timeout=30).returncode == 0
+        except (OSError, subprocess.TimeoutExpired):
+            done = False
+        if not done:
+            pytest.skip("running as root where chattr +i is unavailable: no folder is unwritable")
+        undo = ["chattr", "-i", str(folder)]
+    else:
+        folder.chmod(0o555)
+    try:
+        if os.access(folder, os.W_OK):
+            pytest.skip("cannot make a folder unwritable here")
+        yield folder
+    finally:
+        if undo:
+            subprocess.run(undo, capture_output=True, timeout=30)
+        else:
+            folder.chmod(0o755)

@@ -1,4 +1,10 @@
-"""``synthcorona build-table``: build an emissivity table from a CHIANTI copy."""
+"""``synthcorona build-table``: build an emissivity table from a CHIANTI copy.
+
+``--out FILE`` is checked before the build (not an empty name, not a folder, its folder writable or
+creatable) and locked while the build lasts (a second build into the same file is refused); the
+table is written beside it in a staging folder and moves into place (``os.replace``) only when
+complete, so a failed or interrupted build leaves an earlier table of that name untouched
+(:class:`synthcorona.io.output_folder.OutputFile`)."""
 from __future__ import annotations
 
 NAME = "build-table"
@@ -14,7 +20,9 @@ so an interrupted build resumes where it stopped. Needs fiasco (Python 3.12).
 def add_arguments(p) -> None:
     """Options of ``synthcorona build-table``."""
     p.add_argument("--chianti", help="ASCII CHIANTI tree or .tar.xz (default: $SYNTHCORONA_CHIANTI, then fiasco's)")
-    p.add_argument("--out", required=True, metavar="FILE", help="netCDF file to write")
+    p.add_argument("--out", required=True, metavar="FILE",
+                   help="netCDF file to write (checked before the build, locked while it lasts, replaced only by a "
+                        "complete table)")
     p.add_argument("--jobs", "-j", type=int, default=0,
                    help="worker processes of the local dask cluster (default 0: one per CPU core; "
                         "1: no cluster, run in this process)")
@@ -44,14 +52,15 @@ def run(args) -> int:
     import numpy as np
 
     from ..atomic.builder import BuildSettings, build_table, default_energy_grid
+    from ..io.output_folder import OutputFile
 
+    output = OutputFile(args.out, argv=getattr(args, "command_line", None))
     logT = np.round(np.arange(args.logT_min, args.logT_max + 1e-9, args.logT_step), 6)
     settings = BuildSettings(logT=logT, log_density=np.array(args.log_densities, dtype=float),
                              energy=default_energy_grid(args.energy_points), elements=args.elements,
                              line_threshold=args.line_threshold, two_ion_max_levels=args.two_ion_max_levels)
-    out = build_table(args.out, chianti=args.chianti, settings=settings, jobs=args.jobs,
-                      work_dir=args.work_dir, progress=not args.quiet, scheduler=args.scheduler,
-                      retries=args.retries)
-    print(f"wrote {out}")
+    with output:
+        build_table(output.path(), chianti=args.chianti, settings=settings, jobs=args.jobs, work_dir=args.work_dir,
+                    progress=not args.quiet, scheduler=args.scheduler, retries=args.retries)
+    print(f"wrote {output.target}")
     return 0
-

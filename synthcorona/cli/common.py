@@ -1,6 +1,6 @@
 """Helpers shared by the subcommands: reading quantities, bands and the emissivity table from the
-command line, and the output folder. Every user mistake becomes a :class:`~synthcorona.errors.CliError`
-naming the option."""
+command line, and the output folder (:mod:`synthcorona.io.output_folder`). Every user mistake becomes a
+:class:`~synthcorona.errors.CliError` (or another :class:`~synthcorona.errors.InputError`) naming the option."""
 from __future__ import annotations
 
 import os
@@ -8,7 +8,7 @@ import os
 from ..errors import CliError, InputError
 
 __all__ = ["parse_quantity", "parse_band", "parse_range", "add_table_option", "add_out_option", "default_out",
-           "load_table", "output_folder"]
+    "load_table", "check_out", "open_output", "output_notes"]
 
 
 def parse_quantity(text: str, unit: str, what: str):
@@ -87,7 +87,8 @@ def add_out_option(p, command: str) -> None:
     :func:`default_out` (the one rule for every such subcommand)."""
     p.add_argument("--out", default=default_out(command), metavar="DIR",
                    help=f"output folder, created if needed (default '{default_out(command)}': the subcommand's "
-                        "name + '_out', in the current folder)")
+                        "name + '_out', in the current folder); checked before computing, locked while the run "
+                        "lasts, its files replaced only when all new ones are complete; manifest.json lists them")
 
 
 def load_table(args):
@@ -101,11 +102,31 @@ def load_table(args):
     return resolve_table(path)
 
 
-def output_folder(path, option: str = "--out"):
-    """The output folder ``path`` (created if needed) as a ``pathlib.Path``."""
-    from ..io.writers import make_folder
+def check_out(args, option: str = "--out"):
+    """Check the output folder of ``args.out`` before any computation
+    (:func:`synthcorona.io.output_folder.check_output_folder`; an error names ``option``)."""
+    from ..io.output_folder import check_output_folder
 
-    try:
-        return make_folder(path)
-    except OSError as exc:
-        raise CliError(f"{option}={path}: cannot create the output folder ({exc.strerror})") from None
+    return check_output_folder(args.out, option)
+
+
+def open_output(args, option: str = "--out"):
+    """The :class:`~synthcorona.io.output_folder.OutputRun` of ``args.out``, with the command line of the run
+    for its lock file and manifest."""
+    from ..io.output_folder import OutputRun
+
+    return OutputRun(args.out, argv=getattr(args, "command_line", None), option=option)
+
+
+def output_notes(out) -> list[str]:
+    """Lines for the terminal about an output folder after its run: what was cleaned up after earlier killed
+    runs, the previous run's files removed, and the files that are not from this run."""
+    lines = [f"note: {r}" for r in out.recovered]
+    if out.removed:
+        lines.append(f"removed from {out.target}/ the files of the previous run that this run did not write: "
+                     f"{', '.join(out.removed)}")
+    if out.unlisted:
+        shown = ", ".join(out.unlisted[:10]) + (f" and {len(out.unlisted) - 10} more" if len(out.unlisted) > 10 else "")
+        lines.append(f"note: {out.target}/ also holds {shown}, which no manifest lists: not from this run, left in "
+                     "place")
+    return lines

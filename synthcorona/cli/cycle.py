@@ -5,7 +5,7 @@ from __future__ import annotations
 import pathlib
 
 from ..errors import CliError
-from .common import add_out_option, add_table_option, load_table, output_folder
+from .common import add_out_option, add_table_option, check_out, load_table, open_output, output_notes
 
 NAME = "cycle"
 HELP = "compare fluxes, count rates, hardness and dimming detectability across an activity cycle"
@@ -22,6 +22,10 @@ file). Writes into the output folder:
   cycle_phases.ecsv     one row per phase, with units (and cycle_phases.csv, units in the header)
   cycle_amplitudes.ecsv max/min and log10(max/min) of every flux and count rate over the cycle
   cycle_*.png           each quantity against phase (unless --no-figures)
+  manifest.json         every file above with its size and SHA-256, the inputs, the seed, the command
+
+The output folder is checked before computing, locked while the run lasts and replaced whole (as for
+``forecast``).
 """
 
 
@@ -42,7 +46,8 @@ def run(args) -> int:
     """Read the cycle file, compute the comparison, write netCDF/ECSV/CSV/PNG and print a summary."""
     from ..dimming.sizes import MIN_EXCEEDANCES
     from ..io.cycle_file import read_cycle_file
-    from ..io.writers import write_figures, write_netcdf, write_table
+    from ..io.manifest import input_entry, table_entry
+    from ..io.writers import write_figure, write_netcdf, write_table
     from ..plotting.cycle import cycle_figures
     from ..products.cycle import cycle_tables
 
@@ -51,21 +56,29 @@ def run(args) -> int:
     path = pathlib.Path(args.cycle_file)
     if not path.is_file():
         raise CliError(f"{path}: file not found")
+    check_out(args)
     table = load_table(args)
     inputs = read_cycle_file(path)
     if args.realisations is not None and args.realisations < inputs.minimum_realisations:
         raise CliError(f"--realisations={args.realisations}: the reference scenario's false-alarm probability "
                        f"{inputs.reference.observation.false_alarm:g} needs at least {inputs.minimum_realisations} "
                        f"({MIN_EXCEEDANCES} expected false alarms)")
-    ds = inputs.run(n_realisations=args.realisations, table=table)
-    out = output_folder(args.out)
-    written = [write_netcdf(ds, out / "cycle.nc")]
-    per, amp = cycle_tables(ds)
-    written += write_table(per, out / "cycle_phases.ecsv", csv=True)
-    written += write_table(amp, out / "cycle_amplitudes.ecsv")
-    if not args.no_figures:
-        written += write_figures(cycle_figures(ds), out, dpi=120)
-    _summary(ds, inputs, out, [p.name for p in written])
+    with open_output(args) as out:
+        ds = inputs.run(n_realisations=args.realisations, table=table)
+        ins = {"cycle": input_entry(path)}
+        if inputs.reference_path:
+            ins["reference_scenario"] = input_entry(inputs.reference_path)
+        out.record(seed=int(inputs.seed) if inputs.reference is not None else None, inputs=ins,
+                   table=table_entry(table))
+        written = [write_netcdf(ds, out.path("cycle.nc"))]
+        per, amp = cycle_tables(ds)
+        written += write_table(per, out.path("cycle_phases.ecsv"), csv=True)
+        written += write_table(amp, out.path("cycle_amplitudes.ecsv"))
+        if not args.no_figures:
+            written += [write_figure(fig, out.path(name), dpi=120) for name, fig in cycle_figures(ds).items()]
+    _summary(ds, inputs, out.target, [p.name for p in written])
+    for line in output_notes(out):
+        print(line)
     return 0
 
 

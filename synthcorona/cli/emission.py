@@ -10,7 +10,17 @@ from __future__ import annotations
 
 import argparse
 
-from .common import add_out_option, add_table_option, load_table, output_folder, parse_band, parse_quantity, parse_range
+from .common import (
+    add_out_option,
+    add_table_option,
+    check_out,
+    load_table,
+    open_output,
+    output_notes,
+    parse_band,
+    parse_quantity,
+    parse_range,
+)
 
 NAME = "emission"
 HELP = "spectrum and band fluxes of a DEM (Gaussian in log T or isothermal)"
@@ -73,6 +83,7 @@ def add_arguments(p) -> None:
 def run(args) -> int:
     """Compute and write the spectrum and band fluxes (or luminosities) of the DEM; returns 0."""
     from ..dem import GaussianDEM, IsothermalDEM
+    from ..io.manifest import table_entry
     from ..io.writers import write_figure, write_netcdf, write_table
     from ..plotting.spectrum import plot_spectrum
     from ..products.spectrum import DEFAULT_FLUX_BANDS, dem_spectrum
@@ -87,21 +98,25 @@ def run(args) -> int:
     bands = [parse_band(b) for b in args.band] if args.band else list(DEFAULT_FLUX_BANDS)
     limits = parse_range(args.wavelength_range, args.wavelength_unit, "--wavelength-range")
     step = parse_quantity(args.wavelength_bin, "Angstrom", "--wavelength-bin")
+    check_out(args)
     table = load_table(args)
-    res = dem_spectrum(dem, dist, bands=bands, density=dens, abundances=args.abundances, wavelength_range=limits,
-                       wavelength_bin=step, table=table)
-    out = output_folder(args.out)
-    written = write_table(res.fluxes, out / "band_fluxes.ecsv", csv=True)
-    written.append(write_netcdf(res.spectrum, out / "spectrum.nc"))
-    fig = plot_spectrum(res.spectrum, title=f"{dem!r} at {dist}" if dist is not None else f"{dem!r}: luminosity")
-    if dist is None:
-        fig.axes[0].set_ylabel(f"luminosity density [{res.spectrum.attrs.get('units', '')}]")
-    written.append(write_figure(fig, out / "spectrum.png", dpi=120))
+    with open_output(args) as out:
+        res = dem_spectrum(dem, dist, bands=bands, density=dens, abundances=args.abundances,
+                           wavelength_range=limits, wavelength_bin=step, table=table)
+        out.record(table=table_entry(table))
+        written = write_table(res.fluxes, out.path("band_fluxes.ecsv"), csv=True)
+        written.append(write_netcdf(res.spectrum, out.path("spectrum.nc")))
+        fig = plot_spectrum(res.spectrum, title=f"{dem!r} at {dist}" if dist is not None else f"{dem!r}: luminosity")
+        if dist is None:
+            fig.axes[0].set_ylabel(f"luminosity density [{res.spectrum.attrs.get('units', '')}]")
+        written.append(write_figure(fig, out.path("spectrum.png"), dpi=120))
     print(f"DEM: {dem!r}; distance {dist if dist is not None else 'not given (luminosities only)'}; "
           f"abundances {args.abundances}; n_e {dens}")
     print(f"table: {table.path.name} (CHIANTI {table.provenance.get('chianti_version')}, see provenance)")
     for r in res.fluxes:
         flux = f"flux {r['flux'].value:10.3e} erg s-1 cm-2   " if "flux" in r.colnames else ""
         print(f"  {r['band']:>22s}: {flux}L {r['luminosity'].value:10.3e} erg s-1")
-    print(f"wrote {', '.join(str(p) for p in written)}")
+    print(f"wrote {', '.join(str(out.target / p.name) for p in written)}")
+    for line in output_notes(out):
+        print(line)
     return 0

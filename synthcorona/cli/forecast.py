@@ -2,7 +2,7 @@
 from __future__ import annotations
 
 from ..errors import CliError
-from .common import add_out_option, add_table_option, load_table, output_folder
+from .common import add_out_option, add_table_option, check_out, load_table, open_output, output_notes
 
 NAME = "forecast"
 HELP = "CME-dimming forecast of a scenario file: depths, durations, P(detect), minimum detectable mass, report"
@@ -33,52 +33,77 @@ def add_arguments(p) -> None:
                         "false-alarm probability, checked before any computation; default: the file's "
                         "[montecarlo] realisations)")
     p.add_argument("--seed", type=int, default=None,
-                   help="integer seed of every random draw (dimensionless; default: the file's [montecarlo] seed)")
+                   help="integer seed of every random draw (dimensionless, 0 to 2**63-1; default: the file's "
+                        "[montecarlo] seed)")
     p.add_argument("--report", choices=("md", "html", "both", "none"), default=None,
                    help="report format: Markdown, self-contained HTML (figures embedded), both or none (default: "
                         "the file's [output] report, else md)")
     p.add_argument("--no-figures", action="store_true", help="write no PNG figures (and none in the report)")
 
 
+#: The largest seed the forecast file can record (netCDF attributes hold 64-bit signed integers).
+SEED_MAX = 2 ** 63 - 1
+
+
 def run(args) -> int:
-    """Run the forecast and write the output folder; returns 0 (user mistakes raise for exit status 2)."""
+    """Run the forecast and write the output folder; returns 0 (user mistakes raise for exit status 2).
+
+    Every check that needs no computation comes first: the options, the output folder, the scenario
+    file; the folder is then locked, and the products are written into it only when all are complete
+    (:class:`~synthcorona.io.output_folder.OutputRun`)."""
     import time
-    import warnings
 
     from ..io.forecast_file import read_forecast_file
-    from ..io.report import forecast_report
-    from ..io.writers import figure_png, write_bytes, write_netcdf, write_table, write_text
-    from ..plotting.forecast import forecast_figures
-    from ..products.forecast import check_realisations, forecast_tables, run_forecast
+    from ..products.forecast import check_realisations
 
     t_start = time.perf_counter()
     if args.realisations is not None:
         check_realisations(args.realisations, name="--realisations")
-    if args.seed is not None and args.seed < 0:
-        raise CliError(f"--seed={args.seed}: give a non-negative integer")
+    if args.seed is not None and not 0 <= args.seed <= SEED_MAX:
+        raise CliError(f"--seed={args.seed}: give an integer in [0, {SEED_MAX}] (the range the forecast file can "
+                       "record)")
+    check_out(args)
     table = load_table(args)
     inputs = read_forecast_file(args.scenario, build=False)
     if args.realisations is not None:
         check_realisations(args.realisations, inputs.observation.false_alarm, name="--realisations")
+    with open_output(args) as out:
+        ds, written = _compute_and_write(args, inputs, table, out)
+    _summary(ds, out.target, written, time.perf_counter() - t_start)
+    for line in output_notes(out):
+        print(line)
+    return 0
+
+
+def _compute_and_write(args, inputs, table, out):
+    """The forecast, written into the staging folder of ``out``; (Dataset, names of the files written)."""
+    import warnings
+
+    from ..io.manifest import input_entry, table_entry
+    from ..io.report import forecast_report
+    from ..io.writers import figure_png, write_bytes, write_netcdf, write_table, write_text
+    from ..plotting.forecast import forecast_figures
+    from ..products.forecast import forecast_tables, run_forecast
+
     inputs = inputs.with_scenario(table=table)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
         ds = run_forecast(inputs, realisations=args.realisations, seed=args.seed, table=table)
-    out = output_folder(args.out)
-    written = [write_netcdf(ds, out / "forecast.nc")]
+    out.record(seed=int(ds.attrs["seed"]), inputs={"scenario": input_entry(args.scenario)},
+               table=table_entry(table))
+    written = [write_netcdf(ds, out.path("forecast.nc"))]
     bands, vs_mass = forecast_tables(ds)
     for name, tab in (("bands", bands), ("detection_vs_mass", vs_mass)):
-        written += write_table(tab, out / f"{name}.ecsv", csv=True)
+        written += write_table(tab, out.path(f"{name}.ecsv"), csv=True)
     figures = {}
     if not args.no_figures and inputs.output.get("figures", True):
         for name, (fname, fig, caption) in forecast_figures(ds).items():
             figures[name] = (fname, figure_png(fig, dpi=110), caption)
-            written.append(write_bytes(figures[name][1], out / fname))
+            written.append(write_bytes(figures[name][1], out.path(fname)))
     fmt = args.report or inputs.output.get("report", "md")
     for f in (("md", "html") if fmt == "both" else (() if fmt == "none" else (fmt,))):
-        written.append(write_text(forecast_report(ds, inputs, figures, fmt=f), out / f"report.{f}"))
-    _summary(ds, out, [p.name for p in written], time.perf_counter() - t_start)
-    return 0
+        written.append(write_text(forecast_report(ds, inputs, figures, fmt=f), out.path(f"report.{f}")))
+    return ds, [p.name for p in written]
 
 
 def _summary(ds, out, written, seconds) -> None:

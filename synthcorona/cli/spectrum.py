@@ -3,7 +3,7 @@
 :func:`synthcorona.products.spectrum.scenario_spectrum`)."""
 from __future__ import annotations
 
-from .common import add_out_option, add_table_option, load_table, output_folder
+from .common import add_out_option, add_table_option, check_out, load_table, open_output, output_notes
 
 NAME = "spectrum"
 HELP = "spectrum, band fluxes, luminosities and instrument count rates of a scenario file's corona"
@@ -36,20 +36,24 @@ def run(args) -> int:
     import astropy.units as u
 
     from ..io.forecast_file import read_forecast_file
+    from ..io.manifest import input_entry, table_entry
     from ..io.writers import write_figure, write_netcdf, write_table
     from ..plotting.spectrum import plot_spectrum
     from ..products.spectrum import scenario_spectrum
 
+    check_out(args)
     table = load_table(args)
     inputs = read_forecast_file(args.scenario, build=False)
-    res = scenario_spectrum(inputs, table=table)
-    out = output_folder(args.out)
-    written = []
-    for name, tab in (("band_fluxes", res.fluxes), ("count_rates", res.rates)):
-        written += write_table(tab, out / f"{name}.ecsv", csv=True)
-    written.append(write_netcdf(res.spectrum, out / "spectrum.nc"))
-    if not args.no_figures:
-        written.append(write_figure(plot_spectrum(res.spectrum, title=inputs.title), out / "spectrum.png", dpi=110))
+    with open_output(args) as out:
+        res = scenario_spectrum(inputs, table=table)
+        out.record(inputs={"scenario": input_entry(args.scenario)}, table=table_entry(table))
+        written = []
+        for name, tab in (("band_fluxes", res.fluxes), ("count_rates", res.rates)):
+            written += write_table(tab, out.path(f"{name}.ecsv"), csv=True)
+        written.append(write_netcdf(res.spectrum, out.path("spectrum.nc")))
+        if not args.no_figures:
+            written.append(write_figure(plot_spectrum(res.spectrum, title=inputs.title), out.path("spectrum.png"),
+                                        dpi=110))
     meta = res.meta
     print(f"{inputs.title}")
     print(f"DEM: {meta['dem']}; distance {inputs.star.distance}; abundances {meta['abundances']}; n_e {meta['density']}")
@@ -58,5 +62,7 @@ def run(args) -> int:
               f"L {r['luminosity'].to_value(u.erg / u.s):10.3e} erg s-1")
     for r in res.rates:
         print(f"  {r['label']:>22s}: {r['count_rate'].to_value(u.ct / u.s):10.4g} ct/s")
-    print(f"wrote {', '.join(p.name for p in written)} to {out}/")
+    print(f"wrote {', '.join(p.name for p in written)} to {out.target}/")
+    for line in output_notes(out):
+        print(line)
     return 0

@@ -227,8 +227,10 @@ def read_cycle_file(path=None, *, text: str | None = None, name: str | None = No
     :class:`~synthcorona.errors.ScenarioError` naming the file and the key.
     """
     from ..dimming.sizes import MIN_EXCEEDANCES, minimum_realisations
+    from .forecast_file import check_text_values
 
     root = load_toml(path, text=text, name=name)
+    check_text_values(root)
     is_file = path is not None
     title = root.string("title", default=pathlib.Path(root.file).stem if is_file else "activity cycle")
     period = root.quantity("period", u.yr, default=None, lo=0.0, lo_inclusive=False, hi=1e4)
@@ -259,7 +261,7 @@ def read_cycle_file(path=None, *, text: str | None = None, name: str | None = No
         if reference is None:
             raise ScenarioError(f"{d.where()}: needs reference_scenario = \"<forecast file>\" at the top of the file")
         n_real = d.number("realisations", default=n_real, integer=True, lo=1, hi=10_000_000)
-        seed = d.number("seed", default=seed, integer=True, lo=0)
+        seed = d.number("seed", default=seed, integer=True, lo=0, hi=2 ** 63 - 1)
         min_mass = d.boolean("minimum_mass", default=False)
         fa = float(reference.observation.false_alarm)
         need = minimum_realisations(fa)

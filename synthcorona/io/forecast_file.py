@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import dataclasses
 import pathlib
+import unicodedata
 import warnings
 from dataclasses import dataclass
 from typing import Any
@@ -28,10 +29,51 @@ from ..errors import InputError, ScenarioError
 from .toml import Section, abundances_from_key, dem_from_section, load_toml, read_input_text
 
 __all__ = ["ForecastInputs", "MonteCarlo", "InstrumentEntry", "read_forecast_file", "flare_energy_from_class",
-           "FLARE_CLASS_FLUX", "STATISTICS", "VARIABILITY_RANGES"]
+           "FLARE_CLASS_FLUX", "STATISTICS", "VARIABILITY_RANGES", "ONE_LINE_KEYS", "check_text_values"]
 
 #: Detection statistics of :meth:`DimmingScenario.detection_probability`.
 STATISTICS = ("window", "likelihood")
+
+#: Keys whose text is one line (titles, names, labels): no control character at all (:func:`check_text_values`).
+ONE_LINE_KEYS = ("title", "name", "label")
+
+
+def check_text_values(root: Section) -> None:
+    """Refuse control characters in the text of an input file: none at all in the keys of
+    :data:`ONE_LINE_KEYS` (titles, names, labels are one line of printable text), none but tab and line
+    breaks anywhere else (a description may span lines). The text goes into the attributes of the
+    netCDF files, which cannot hold a NUL, and into one-line terminal output; checked before any
+    computation. Raises :class:`~synthcorona.errors.ScenarioError` naming the file, the table and the key."""
+
+    def check(path: str, shown: str, key: str, text: str) -> None:
+        allowed = "" if key in ONE_LINE_KEYS else "\t\n\r"
+        pos = next((i for i, c in enumerate(text) if unicodedata.category(c) == "Cc" and c not in allowed), None)
+        if pos is None:
+            return
+        sect = f"[{path}] " if path else ""
+        rule = ("a title, name or label is one line of printable text" if key in ONE_LINE_KEYS
+                else "text may hold tabs and line breaks but no other control characters")
+        raise ScenarioError(f"{root.file}: {sect}{shown}: contains the control character U+{ord(text[pos]):04X} "
+                            f"(character {pos + 1}); {rule}", argument=key)
+
+    def walk(data: dict, path: str) -> None:
+        for key, val in data.items():
+            child = f"{path}.{key}" if path else key
+            if isinstance(val, dict):
+                walk(val, child)
+            elif isinstance(val, str):
+                check(path, key, key, val)
+            elif isinstance(val, list):
+                for i, item in enumerate(val):
+                    if isinstance(item, dict):
+                        walk(item, f"{child}[{i}]")
+                    elif isinstance(item, str):
+                        check(path, f"{key}[{i}]", key, item)
+
+    walk(root.data, root.path)
+
+
+
 
 
 
@@ -473,6 +515,7 @@ def read_forecast_file(path=None, *, text: str | None = None, name: str | None =
     elif path is not None:
         raise InputError("read_forecast_file: give a file path or text=, not both", argument="path")
     root = load_toml(text=text, name=name or (str(path) if is_file else None))
+    check_text_values(root)
     sc = root.section("scenario")
     if sc is None:
         sc = Section({}, "scenario", root.file)

@@ -2,8 +2,10 @@
 subcommand.
 
 Every file is first written under a temporary name in its own folder and then moved into place with
-:func:`os.replace`, so a file of the output folder is either the previous complete version or the new
-complete version, never a half-written one (an interrupted run leaves no truncated netCDF behind).
+:func:`os.replace`, so a file is either the previous complete version or the new complete version,
+never a half-written one. The command line writes through these into the staging folder of
+:class:`synthcorona.io.output_folder.OutputRun`, which moves a run's files into the output folder
+only when all of them are complete (a failed or interrupted run leaves the previous set intact).
 
 * :func:`write_netcdf` -- a Dataset or DataArray; attrs that netCDF cannot hold (lists, dicts, None)
   are stored as JSON text, text variables as fixed-width strings.

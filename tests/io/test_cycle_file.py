@@ -93,3 +93,22 @@ def test_flux_phase_width_is_width_logT_and_the_former_key_is_an_error():
     assert inputs.phases[1].width_logT == 0.2
     with pytest.raises(ScenarioError, match=r"bad.toml: \[phase\[1\]\] width_dex = 0.2: renamed: write width_logT = 0.2"):
         read_cycle_file(text=MINIMAL.replace(flux_phase, flux_phase + "width_dex = 0.2\n"), name="bad.toml")
+
+
+def test_dimming_seed_beyond_what_the_file_can_record_names_the_key():
+    # cycle.nc keeps the seed as a 64-bit signed netCDF attribute: 2**63 - 1 is the largest
+    text = f'reference_scenario = "{REFERENCE}"\n' + MINIMAL + f"[dimming]\nseed = {2 ** 63}\n"
+    with pytest.raises(ScenarioError, match=r"c.toml: \[dimming\] seed = 9223372036854775808: out of range"):
+        read_cycle_file(text=text, name="c.toml")
+    assert read_cycle_file(text=text.replace(str(2 ** 63), str(2 ** 63 - 1)), name="c.toml").seed == 2 ** 63 - 1
+
+
+@pytest.mark.parametrize("old, new, where", [
+    ('title = "t"', 'title = "t\\u0000"', r"c.toml: title: contains the control character U\+0000"),
+    ('label = "b"', 'label = "b\\n"', r"c.toml: \[phase\[1\]\] label: contains the control character U\+000A"),
+])
+def test_control_characters_in_text_name_the_key(old, new, where):
+    text = MINIMAL.replace(old, new, 1)
+    assert text != MINIMAL
+    with pytest.raises(ScenarioError, match=where):
+        read_cycle_file(text=text, name="c.toml")
