@@ -28,6 +28,8 @@ import os
 import pathlib
 import re
 
+from .errors import InputError
+
 __all__ = ["TABLE_ENV", "CHIANTI_ENV", "SCHEDULER_ENV", "MEMORY_BUDGET_ENV", "table_path", "chianti_path",
     "scheduler_address", "memory_budget_setting", "parse_bytes", "TEST_PAUSE_ENV", "pause_for_tests"]
 

@@ -238,7 +238,6 @@ def test_scenario_is_built_on_the_given_table(tmp_path, table):
     np.testing.assert_array_equal(built.scenario.depth()["depth"].values, direct.scenario.depth()["depth"].values)
 
 
-<<<<<<< HEAD
 def test_non_utf8_byte_names_file_and_offset(tmp_path):
     raw = BASE.encode()
     p = tmp_path / "cp1252.toml"
@@ -261,7 +260,8 @@ def test_path_is_a_path_and_text_is_explicit(tmp_path):
         read_forecast_file(BASE, build=False)
     with pytest.raises(InputError, match="not both"):
         read_forecast_file(folder / "x=1.toml", text=BASE)
-=======
+
+
 @pytest.mark.parametrize("edit, where", [
     (('title = "test star"', 'title = "test\\u0000star"'), r"\[scenario\] title: contains the control character U\+0000 "
                                                           r"\(character 5\); a title, name or label is one line"),
@@ -276,10 +276,9 @@ def test_control_characters_in_text_name_the_key(tmp_path, edit, where):
     text = BASE.replace(*edit, 1)
     assert text != BASE
     with pytest.raises(ScenarioError, match=where):
-        read_forecast_file(text, name="bad.toml", build=False)
+        read_forecast_file(text=text, name="bad.toml", build=False)
 
 
 def test_a_description_may_span_lines():
     text = BASE.replace('title = "test star"', 'title = "t"\ndescription = """two\n\tlines"""', 1)
-    assert read_forecast_file(text, name="ok.toml", build=False).description == "two\n\tlines"
->>>>>>> outputs
+    assert read_forecast_file(text=text, name="ok.toml", build=False).description == "two\n\tlines"
