@@ -19,7 +19,7 @@
 Everything is returned as one :class:`xarray.Dataset` with units and provenance in attrs (the
 emissivity table's CHIANTI version, content hash and substituted ions; the scenario file's text
 and SHA-256); nothing is written to disk. :func:`forecast_tables` turns it into astropy tables,
-:mod:`synthcorona.plotting.forecast` into figures, :mod:`synthcorona.io.report` into the one-page
+:mod:`synthcorona.plotting.forecast` into figures, :mod:`synthcorona.io.report` into the short
 report and :mod:`synthcorona.io.writers` into files.
 """
 from __future__ import annotations
