@@ -63,7 +63,7 @@ def run(args) -> int:
         written += write_table(tab, out / f"{name}.ecsv", csv=True)
     figures = {}
     if not args.no_figures and inputs.output.get("figures", True):
-        for name, (fname, fig, caption) in forecast_figures(ds).items():
+        for name, (fname, fig, caption) in forecast_figures(ds, inputs).items():
             figures[name] = (fname, figure_png(fig, dpi=110), caption)
             written.append(write_bytes(figures[name][1], out / fname))
     fmt = args.report or inputs.output.get("report", "md")
