@@ -22,6 +22,7 @@ file). Writes into the output folder:
   cycle_phases.ecsv     one row per phase, with units (and cycle_phases.csv, units in the header)
   cycle_amplitudes.ecsv max/min and log10(max/min) of every flux and count rate over the cycle
   cycle_*.png           each quantity against phase (unless --no-figures)
+  cycle_report.md/.html a one-page summary and an appendix, like the forecast report (HTML: figures embedded)
   manifest.json         every file above with its size and SHA-256, the inputs, the seed, the command
 
 The output folder is checked before computing, locked while the run lasts and replaced whole (as for
@@ -46,9 +47,10 @@ def run(args) -> int:
     """Read the cycle file, compute the comparison, write netCDF/ECSV/CSV/PNG and print a summary."""
     from ..dimming.sizes import MIN_EXCEEDANCES
     from ..io.cycle_file import read_cycle_file
+    from ..io.cycle_report import cycle_report
     from ..io.manifest import input_entry, table_entry
-    from ..io.writers import write_figure, write_netcdf, write_table
-    from ..plotting.cycle import cycle_figures
+    from ..io.writers import write_figure, write_netcdf, write_table, write_text
+    from ..plotting.cycle import cycle_captions, cycle_figures
     from ..products.cycle import cycle_tables
 
     if args.realisations is not None and args.realisations < 1:
@@ -74,8 +76,15 @@ def run(args) -> int:
         per, amp = cycle_tables(ds)
         written += write_table(per, out.path("cycle_phases.ecsv"), csv=True)
         written += write_table(amp, out.path("cycle_amplitudes.ecsv"))
+        figures = {}
         if not args.no_figures:
-            written += [write_figure(fig, out.path(name), dpi=120) for name, fig in cycle_figures(ds).items()]
+            captions = cycle_captions(ds)
+            for name, fig in cycle_figures(ds).items():
+                png = write_figure(fig, out.path(name), dpi=120)
+                written.append(png)
+                figures[name] = (name, png.read_bytes(), captions.get(name, ""))
+        for fmt in ("md", "html"):
+            written.append(write_text(cycle_report(ds, inputs, figures, fmt=fmt), out.path(f"cycle_report.{fmt}")))
     _summary(ds, inputs, out.target, [p.name for p in written])
     for line in output_notes(out):
         print(line)
@@ -91,12 +100,12 @@ def _summary(ds, inputs, out, written) -> None:
           f"N_H {ds.attrs['nh_cm-2']:.3g} cm-2; table CHIANTI {ds.attrs.get('table_chianti_version', '?')}")
     for j, b in enumerate(ds["band"].values):
         f = ds["flux"].values[:, j]
-        print(f"  flux {b}: {np.nanmin(f):.3e}-{np.nanmax(f):.3e} erg s-1 cm-2, amplitude "
+        print(f"  flux {b}: {np.nanmin(f):.3e} to {np.nanmax(f):.3e} erg s-1 cm-2, amplitude "
               f"{ds['flux_amplitude'].values[j]:.3g} ({ds['flux_log_amplitude'].values[j]:.2f} dex)")
     if "count_rate" in ds:
         for j, c in enumerate(ds["channel"].values):
             r = ds["count_rate"].values[:, j]
-            print(f"  rate {c}: {np.nanmin(r):.3e}-{np.nanmax(r):.3e} ct/s, amplitude "
+            print(f"  rate {c}: {np.nanmin(r):.3e} to {np.nanmax(r):.3e} ct/s, amplitude "
                   f"{ds['count_rate_amplitude'].values[j]:.3g}")
     if "hardness_ratio" in ds:
         for j, pr in enumerate(ds["pair"].values):
@@ -104,13 +113,13 @@ def _summary(ds, inputs, out, written) -> None:
             print(f"  hardness {pr}: {np.nanmin(h):+.3f} to {np.nanmax(h):+.3f}")
     if "rate_conversion" in ds:
         rc = ds["rate_conversion"].values
-        print(f"  1 ct/s in {ds.attrs['conversion_source']} = {np.nanmin(rc):.4g}-{np.nanmax(rc):.4g} ct/s in "
+        print(f"  1 ct/s in {ds.attrs['conversion_source']} = {np.nanmin(rc):.4g} to {np.nanmax(rc):.4g} ct/s in "
               f"{ds.attrs['conversion_target']} over the cycle")
     if "detection_probability" in ds:
         for j, b in enumerate(ds["dimming_band"].values):
             pr = ds["detection_probability"].values[:, j]
             best = int(np.nanargmax(pr)) if np.any(np.isfinite(pr)) else 0
-            print(f"  reference CME in {b}: P(detect) {np.nanmin(pr):.3f}-{np.nanmax(pr):.3f} "
+            print(f"  reference CME in {b}: P(detect) {np.nanmin(pr):.3f} to {np.nanmax(pr):.3f} "
                   f"(best at {ds['label'].values[best]}, phase {ds['phase'].values[best]:g}{(' ' + unit) if unit else ''})")
         for lab, note in zip(ds["label"].values, ds["dimming_note"].values):
             if note:

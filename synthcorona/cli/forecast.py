@@ -97,7 +97,7 @@ def _compute_and_write(args, inputs, table, out):
         written += write_table(tab, out.path(f"{name}.ecsv"), csv=True)
     figures = {}
     if not args.no_figures and inputs.output.get("figures", True):
-        for name, (fname, fig, caption) in forecast_figures(ds).items():
+        for name, (fname, fig, caption) in forecast_figures(ds, inputs).items():
             figures[name] = (fname, figure_png(fig, dpi=110), caption)
             written.append(write_bytes(figures[name][1], out.path(fname)))
     fmt = args.report or inputs.output.get("report", "md")

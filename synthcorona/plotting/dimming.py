@@ -28,13 +28,56 @@ def _need(ds, name, variables, what):
         raise InputError(f"{name} lacks {missing}; pass the Dataset returned by {what}")
 
 
-def plot_light_curves(scenario_lightcurve_dataset, n_show: int = 3):
+#: Colours of the light curves: expected with / without the CME, and the shades of their realisations.
+WITH_CME_COLOUR, WITHOUT_CME_COLOUR = "tab:red", "tab:blue"
+_WITH_SHADE, _WITHOUT_SHADE = "#f08a8a", "#86b9e3"
+#: Line style of realisation 1, 2, 3, ... (the same in every panel).
+REALISATION_STYLES = ("-", (0, (4, 2)), (0, (1, 1.5)), (0, (6, 2, 1, 2)))
+
+
+def rate_scale(values) -> int:
+    """Power of ten k by which count rates are divided on a light-curve axis (0 below 10^4 ct/s): the axis then
+    reads ``[10^k ct/s]`` with plain tick labels instead of an offset or exponent label."""
+    top = float(np.nanmax(np.abs(values))) if np.size(values) else 0.0
+    return int(np.floor(np.log10(top))) if top >= 1e4 else 0
+
+
+def _light_curve_panel(ax, t_h, ds, b, counts, counts_without, width, bg, n_show, scale):
+    """One band's panel: realisations (thin steps) under the expected curves (thick lines)."""
+    f = 10.0 ** -scale
+    styles = REALISATION_STYLES
+    if counts_without is not None:
+        for i, row in enumerate(counts_without.sel(band=b).values[:n_show]):
+            ax.step(t_h, row / width * f, where="mid", lw=0.8, color=_WITHOUT_SHADE, ls=styles[i % len(styles)],
+                    zorder=1, label=f"realisation {i + 1} without CME")
+    if counts is not None:
+        for i, row in enumerate(counts.sel(band=b).values[:n_show]):
+            ax.step(t_h, row / width * f, where="mid", lw=0.8, color=_WITH_SHADE, ls=styles[i % len(styles)],
+                    zorder=2, label=f"realisation {i + 1} with CME")
+    ax.plot(t_h, (ds["expected_without_cme"].sel(band=b).values + bg) * f, color=WITHOUT_CME_COLOUR, lw=1.4,
+            zorder=3, label="expected without CME")
+    ax.plot(t_h, (ds["expected"].sel(band=b).values + bg) * f, color=WITH_CME_COLOUR, lw=1.6, zorder=4,
+            label="expected with CME")
+    if "cme_onset_time_s" in ds.attrs:
+        ax.axvline(float(ds.attrs["cme_onset_time_s"]) / 3600.0, color="k", ls=":", lw=0.8, zorder=5,
+                   label="CME onset")
+    ax.ticklabel_format(axis="y", useOffset=False, style="plain")
+    ax.set_ylabel(f"{b} [{'' if scale == 0 else '10$^{%d}$ ' % scale}ct/s]")
+
+
+def plot_light_curves(scenario_lightcurve_dataset, n_show: int = 3, counts_without_cme=None, star: str = ""):
     """Expected light curves with and without the CME and up to ``n_show`` Poisson realisations.
 
     ``scenario_lightcurve_dataset``: the result of ``DimmingScenario.light_curve(...,
     n_realisations=n)``; realisations (``counts``, including background) are drawn as rates
-    counts / bin width. One panel per band; time in hours from the start.
+    counts / bin width, in light red; ``counts_without_cme`` (realisation, band, time), optional:
+    realisations without the CME, in light blue. One panel per band; time in hours from the start;
+    rates of 10^4 ct/s and more in units of a power of ten (:func:`rate_scale`). The legend sits
+    below the panels, never over the data; the title gives the CME mass, ``star`` and the distance
+    (in AU below 0.001 pc).
     """
+    from ..io.report_render import distance_text, number
+
     ds = scenario_lightcurve_dataset
     _need(ds, "scenario_lightcurve_dataset", ["expected", "expected_without_cme", "time"],
           "DimmingScenario.light_curve")
@@ -42,26 +85,23 @@ def plot_light_curves(scenario_lightcurve_dataset, n_show: int = 3):
     if n_show < 0:
         raise InputError(f"n_show={n_show} must be >= 0")
     bands = list(ds["band"].values)
-    fig, axes = _figure(len(bands))
+    fig, axes = _figure(len(bands), height=2.4 if len(bands) > 1 else 3.0)
     t_h = ds["time"].values / 3600.0
     width = float(ds.attrs.get("bin_width_s", np.diff(ds["time"].values[:2])[0] if ds.sizes["time"] > 1 else 1.0))
+    counts = ds["counts"] if "counts" in ds and n_show > 0 else None
+    without = counts_without_cme if n_show > 0 else None
     for ax, b in zip(axes, bands):
         bg = float(ds["background"].sel(band=b)) if "background" in ds else 0.0
-        if "counts" in ds and n_show > 0:
-            c = ds["counts"].sel(band=b).values[:n_show]
-            for i, row in enumerate(c):
-                ax.step(t_h, row / width, where="mid", lw=0.6, alpha=0.6, color="0.5",
-                        label="realisations (with CME)" if i == 0 else None)
-        ax.plot(t_h, ds["expected_without_cme"].sel(band=b).values + bg, color="tab:blue", lw=1.2,
-                label="expected without CME")
-        ax.plot(t_h, ds["expected"].sel(band=b).values + bg, color="tab:red", lw=1.5, label="expected with CME")
-        if "cme_onset_time_s" in ds.attrs:
-            ax.axvline(float(ds.attrs["cme_onset_time_s"]) / 3600.0, color="k", ls=":", lw=0.8)
-        ax.set_ylabel(f"{b} [ct/s]")
-        ax.legend(fontsize="small", loc="best")
+        scale = rate_scale(ds["expected_without_cme"].sel(band=b).values + bg)
+        _light_curve_panel(ax, t_h, ds, b, counts, without, width, bg, n_show, scale)
     axes[-1].set_xlabel("time [h]")
-    axes[0].set_title(f"CME mass {float(ds.attrs.get('mass_g', np.nan)):.3g} g at "
-                      f"{float(ds.attrs.get('star_distance_pc', np.nan)):.3g} pc")
+    handles, labels = axes[0].get_legend_handles_labels()
+    fig.legend(handles, labels, loc="outside lower center", ncol=min(len(labels), 3), fontsize="small",
+               frameon=False)
+    where = f"{star} at " if star else "at "
+    dist = ds.attrs.get("star_distance_pc")
+    fig.suptitle(f"CME of {number(ds.attrs.get('mass_g', np.nan))} g, {where}"
+                 f"{distance_text(dist) if dist is not None else 'unknown distance'}", fontsize="medium")
     return fig
 
 

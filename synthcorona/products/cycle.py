@@ -345,8 +345,10 @@ def _conversion(data, attrs, conversion, dems, nh, abundances, density, table) -
                 "units": "ct / s", "long_name": f"rate in {tgt[0]} implied by {r:g} ct/s in {src[0]}"})
         attrs["conversion_rate_ct_s-1"] = r
     lo_k, hi_k = fb.energy_kev
+    origin = ("given" if conversion.flux_band is not None else
+              f"the whole response of {tgt[1].name}" if tgt[2] == "total" else f"the limits of {tgt[0]}")
     attrs.update({"conversion_source": src[0], "conversion_target": tgt[0],
-                  "conversion_flux_band_kev": f"{lo_k:.6g}-{hi_k:.6g}",
+                  "conversion_flux_band_kev": f"{lo_k:.6g}-{hi_k:.6g}", "conversion_flux_band_origin": origin,
                   "conversion_flux": "absorbed" if conversion.absorbed else "unabsorbed",
                   "conversion_method": "counts_to_flux factors C = F/R per phase DEM "
                                        "(synthcorona.instruments.observables.counts_to_flux)"})

@@ -35,7 +35,8 @@ import xarray as xr
 
 from ..errors import BracketError, InputError
 
-__all__ = ["run_forecast", "forecast_tables", "table_provenance", "fwhm_duration", "check_realisations", "REALISATIONS_RANGE"]
+__all__ = ["run_forecast", "forecast_tables", "table_provenance", "fwhm_duration", "dimming_snr", "check_realisations",
+           "REALISATIONS_RANGE"]
 
 #: Monte Carlo realisations per probability that a forecast accepts (scenario files, the command line and
 #: :func:`run_forecast`); at least :func:`synthcorona.dimming.sizes.minimum_realisations` as well.
@@ -50,6 +51,22 @@ def fwhm_duration(onset_s: float, recovery_s: float) -> float:
     recovery at a + tau ln 2).
     """
     return 0.5 * float(onset_s) + float(recovery_s) * math.log(2.0)
+
+
+def dimming_snr(deficit_counts, expected_counts) -> np.ndarray:
+    r"""Photon-noise signal-to-noise of a dimming: :math:`S/N = \Delta N / \sqrt{N}`.
+
+    ``deficit_counts`` :math:`\Delta N`: the counts the dimming removes from a window;
+    ``expected_counts`` :math:`N`: the counts expected in that window (source, flare and
+    background), whose Poisson variance is :math:`N`. This is the "simple" on/off significance
+    of Li & Ma (1983, ApJ 272, 317, eq. 5), :math:`N_s / \sqrt{N_{on} + \alpha^2 N_{off}}`, in the
+    limit of a perfectly known pre-event level (:math:`\alpha^2 N_{off} \to 0`): an upper bound on
+    what a before/after comparison reaches. NaN where ``expected_counts`` is 0.
+    """
+    d = np.asarray(deficit_counts, dtype=float)
+    n = np.asarray(expected_counts, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(n > 0, d / np.sqrt(np.where(n > 0, n, 1.0)), np.nan)
 
 
 def table_provenance(table=None) -> dict:
@@ -147,6 +164,8 @@ def _light_curve_products(sc, nshow: int, seed: int):
     widths = np.diff(t_edges)
     flare_counts = (lc["flare_excess"].values * widths * frac).sum(axis=1)
     dim_counts = (lc["dimming_decrement"].values * widths * frac).sum(axis=1)
+    bg = sc.prepared.rates.background
+    all_counts = ((lc["expected"].values + bg[:, None]) * widths * frac).sum(axis=1)
     with np.errstate(divide="ignore", invalid="ignore"):
         ratio = np.where(dim_counts > 0, flare_counts / dim_counts, np.inf if sc.flare is not None else 0.0)
     band = ("band",)
@@ -163,6 +182,11 @@ def _light_curve_products(sc, nshow: int, seed: int):
                                        {"units": "ct", "long_name": "dimming deficit counts in the post-event window"}),
         "flare_to_dimming": (band, ratio, {"units": "1", "long_name": "flare excess / dimming deficit counts in "
                                                                       "the post-event window"}),
+        "counts_post_window": (band, all_counts, {"units": "ct", "long_name": "expected counts in the post-event "
+                                                                          "window (CME, flare and background)"}),
+        "dimming_snr": (band, dimming_snr(dim_counts, all_counts),
+                        {"units": "1", "long_name": "photon-noise S/N of the dimming in the post-event window, "
+                                                    "deficit counts / sqrt(expected counts)"}),
     }
     return lc, lc0, data, (w0, w1)
 
@@ -180,16 +204,19 @@ def _mass_grid_products(sc, inputs, n, stat, seed) -> tuple[np.ndarray, dict, st
             "and were left out") if dropped.size else "all masses of the grid used"
     nb = len(sc.labels)
     pv = np.full((grid.size, nb), np.nan)
-    pe = np.full_like(pv, np.nan)
+    pe, plo, phi = np.full_like(pv, np.nan), np.full_like(pv, np.nan), np.full_like(pv, np.nan)
     for k, m in enumerate(grid):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
             r = sc.detection_probability(n, statistic=stat, seed=seed, mass=m * u.g)
         pv[k], pe[k] = r["probability"].values, r["probability_error"].values
+        plo[k], phi[k] = r["probability_lower"].values, r["probability_upper"].values
     depth_grid = sc.depths_for(grid) if grid.size else np.zeros((0, nb))
     data = {
         "probability_vs_mass": (("mass", "band"), pv, {"units": "1", "long_name": "P(detect) at each mass of the grid"}),
         "probability_vs_mass_error": (("mass", "band"), pe, {"units": "1"}),
+        "probability_vs_mass_lower": (("mass", "band"), plo, {"units": "1", "long_name": "Wilson 68 % lower"}),
+        "probability_vs_mass_upper": (("mass", "band"), phi, {"units": "1", "long_name": "Wilson 68 % upper"}),
         "depth_vs_mass": (("mass", "band"), depth_grid, {"units": "1"}),
     }
     return grid, data, note
@@ -218,8 +245,20 @@ def _minimum_mass_products(sc, inputs, grid, n, stat, seed) -> tuple[dict, tuple
     return data, (lo_b, hi_b)
 
 
+def _band_luminosities(sc) -> np.ndarray:
+    """(n_b,) erg/s: unabsorbed quiescent luminosity of the corona within each band's energy limits (into 4 pi),
+    at the emissivity density of the scenario (:func:`synthcorona.synthesis.luminosity`)."""
+    from ..spectral import Band
+    from ..synthesis import luminosity
+
+    density = sc.prepared.source.emissivity_density * u.cm ** -3
+    return np.array([float(luminosity(sc.corona.dem, Band(lo * u.keV, hi * u.keV), table=sc.table,
+                                      abundances=sc.corona.abundances, density=density).to_value(u.erg / u.s))
+                     for lo, hi in sc.prepared.kernels.band_limits])
+
+
 def _depth_variables(sc, d, net_depth) -> dict:
-    """Depths, quiescent rates and fluxes, background and decrement per band."""
+    """Depths, quiescent rates, fluxes and luminosities, background and decrement per band."""
     band = ("band",)
     return {
         "depth": (band, d["depth"].values, {"units": "1", "long_name": "full fractional count-rate depth"}),
@@ -227,7 +266,13 @@ def _depth_variables(sc, d, net_depth) -> dict:
                               {"units": "1", "long_name": "full fractional energy-flux depth (band limits)"}),
         "net_depth": net_depth,
         "quiescent_rate": (band, sc.prepared.rates.quiescent_rate, {"units": "ct / s"}),
-        "quiescent_energy_flux": (band, d["quiescent_energy_flux"].values, {"units": "erg / (s cm2)"}),
+        "quiescent_energy_flux": (band, d["quiescent_energy_flux"].values,
+                                  {"units": "erg / (s cm2)", "long_name": "quiescent energy flux at the observer "
+                                                                          "within the band limits, ISM absorption "
+                                                                          "included"}),
+        "quiescent_luminosity": (band, _band_luminosities(sc),
+                                 {"units": "erg / s", "long_name": "quiescent luminosity within the band limits, "
+                                                                   "unabsorbed"}),
         "background": (band, sc.prepared.rates.background, {"units": "ct / s"}),
         "rate_decrement": (band, d["rate_decrement"].values,
                            {"units": "ct / s", "long_name": "full dimming decrement of the count rate"}),
@@ -241,6 +286,10 @@ def _detection_variables(det, stat) -> dict:
         "probability": (band, det["probability"].values,
                         {"units": "1", "long_name": "P(detect) at the scenario's CME mass"}),
         "probability_error": (band, det["probability_error"].values, {"units": "1", "long_name": "binomial error"}),
+        "probability_lower": (band, det["probability_lower"].values,
+                              {"units": "1", "long_name": "Wilson (1927) 68 % score interval, lower"}),
+        "probability_upper": (band, det["probability_upper"].values,
+                              {"units": "1", "long_name": "Wilson (1927) 68 % score interval, upper"}),
         "threshold": (band, det["threshold"].values,
                       {"units": "sigma" if stat == "window" else "1", "long_name": "detection threshold"}),
     }
@@ -359,7 +408,8 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
               "time": ("time", lc["time"].values, {"units": "s", "long_name": "bin centre from the start"}),
               "logT": ("logT", sc.logT, {"units": "log10(K)"}),
               "band_lo": ("band", sc.prepared.kernels.band_limits[:, 0], {"units": "keV"}),
-              "band_hi": ("band", sc.prepared.kernels.band_limits[:, 1], {"units": "keV"})}
+              "band_hi": ("band", sc.prepared.kernels.band_limits[:, 1], {"units": "keV"}),
+              "instrument": ("band", [ins.name for _, ins, _ in sc.channels])}
     attrs = _attrs(sc, tab, inputs, n, sd, stat, bracket, mass_note, window)
     return xr.Dataset(data, coords=coords, attrs=attrs)
 
@@ -376,10 +426,13 @@ def forecast_tables(ds: xr.Dataset):
     nb = len(bands)
     t = QTable()
     t["band"] = bands
+    t["instrument"] = [str(x) for x in ds["instrument"].values]
     t["band_lo"] = ds["band_lo"].values * u.keV
     t["band_hi"] = ds["band_hi"].values * u.keV
     t["quiescent_rate"] = ds["quiescent_rate"].values * u.ct / u.s
     t["background"] = ds["background"].values * u.ct / u.s
+    t["quiescent_energy_flux"] = ds["quiescent_energy_flux"].values * u.erg / (u.s * u.cm ** 2)
+    t["quiescent_luminosity"] = ds["quiescent_luminosity"].values * u.erg / u.s
     t["depth"] = ds["depth"].values
     t["depth_energy_flux"] = ds["depth_energy_flux"].values
     t["net_depth"] = ds["net_depth"].values
@@ -389,6 +442,8 @@ def forecast_tables(ds: xr.Dataset):
     t["flare_peak_excess"] = ds["flare_peak_excess"].values * u.ct / u.s
     t["dimming_peak_decrement"] = ds["dimming_peak_decrement"].values * u.ct / u.s
     t["flare_to_dimming"] = ds["flare_to_dimming"].values
+    t["counts_post_window"] = ds["counts_post_window"].values * u.ct
+    t["dimming_snr"] = ds["dimming_snr"].values
     t["probability"] = ds["probability"].values
     t["probability_error"] = ds["probability_error"].values
     t["minimum_detectable_mass"] = ds["minimum_detectable_mass"].values * u.g

@@ -28,7 +28,8 @@ def test_cli_end_to_end_matches_api(tmp_path, capsys):
     text = capsys.readouterr().out
     assert "Corvanne" in text and "P(detect)" in text
     for name in ("cycle.nc", "cycle_phases.ecsv", "cycle_phases.csv", "cycle_amplitudes.ecsv", "cycle_fluxes.png",
-                 "cycle_count_rates.png", "cycle_hardness.png", "cycle_conversion.png", "cycle_dimming.png"):
+                 "cycle_count_rates.png", "cycle_hardness.png", "cycle_conversion.png", "cycle_dimming.png",
+                 "cycle_report.md", "cycle_report.html"):
         assert (out / name).stat().st_size > 0, name
     ds = xr.load_dataset(out / "cycle.nc", engine="h5netcdf")
     per = QTable.read(out / "cycle_phases.ecsv")

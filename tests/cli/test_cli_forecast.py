@@ -109,13 +109,13 @@ def test_report_and_figures(run, capsys):
     if run["name"] != "young_star_softx":
         pytest.skip("figures and HTML are written for one example only (time)")
     out = run["out"]
-    for f in ("light_curves.png", "detection_vs_mass.png", "temperature_responses.png"):
+    for f in ("effective_area.png", "light_curves.png", "detection_vs_mass.png", "temperature_responses.png"):
         assert (out / f).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     md = (out / "report.md").read_text()
     for text in ("## Assumptions and limitations", "CHIANTI 10.1", "light_curves.png", "Minimum detectable mass"):
         assert text in md
     html = (out / "report.html").read_text()
-    assert html.count("data:image/png;base64,") == 3
+    assert html.count("data:image/png;base64,") == 4
     assert "http://" not in html and "https://" not in html   # self-contained
 
 

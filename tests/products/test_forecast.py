@@ -39,7 +39,8 @@ UNITS = {"depth": "1", "depth_energy_flux": "1", "net_depth": "1", "quiescent_ra
          "threshold": "sigma", "probability_vs_mass": "1", "depth_vs_mass": "1", "minimum_detectable_mass": "g",
          "expected": "ct / s", "temperature_response": "ct cm3 / s", "dem_em_weights": "cm-3", "onset_time": "s",
          "recovery_time": "s", "fwhm_duration": "s", "cme_mass": "g", "max_removable_mass": "g", "counts": "ct",
-         "counts_without_cme": "ct"}
+         "counts_without_cme": "ct", "quiescent_luminosity": "erg / s", "counts_post_window": "ct",
+         "dimming_snr": "1", "probability_lower": "1", "probability_upper": "1", "probability_vs_mass_lower": "1"}
 
 
 @pytest.mark.parametrize("name, unit", UNITS.items())
@@ -82,6 +83,44 @@ def test_numbers_equal_the_scenario_api(small_forecast, same_scenario):
     lo, hi = (float(x) for x in ds.attrs["min_mass_bracket_g"].split())
     mm = sc.minimum_detectable_mass(0.5, bracket=(lo * u.g, hi * u.g), band="sc-fe9", n_realisations=200, seed=3)
     assert float(ds["minimum_detectable_mass"].values[0]) == pytest.approx(float(mm["mass"]), rel=1e-9)
+
+
+def test_report_numbers_equal_the_scenario_api(small_forecast, same_scenario):
+    """What the report needs and the Dataset did not hold: luminosity, post-event counts and S/N, Wilson bounds,
+    the instrument of each band."""
+    from synthcorona.constants import PARSEC_CM
+    from synthcorona.synthesis import band_flux
+
+    _, ds = small_forecast
+    sc = same_scenario
+    # unabsorbed luminosity in the band limits = 4 pi d^2 x the unabsorbed band flux (synthesis.band_flux)
+    lo, hi = float(ds["band_lo"].values[0]), float(ds["band_hi"].values[0])
+    f = band_flux(sc.corona.dem, [lo, hi] * u.keV, 5 * u.pc, table=sc.table, density=2e9 * u.cm ** -3)
+    lum = 4 * np.pi * (5 * PARSEC_CM) ** 2 * f.to_value(u.erg / u.s / u.cm ** 2)
+    assert float(ds["quiescent_luminosity"].values[0]) == pytest.approx(lum, rel=1e-9)
+    # absorption by N_H = 1e18 cm-2 only lowers the flux at the observer
+    assert float(ds["quiescent_energy_flux"].values[0]) < f.to_value(u.erg / u.s / u.cm ** 2)
+    # expected counts (source, flare, background) in the post-event window, summed bin by bin
+    lc = sc.light_curve()
+    (w0, w1) = (x.to_value(u.s) for x in sc.detection_windows()[1])
+    edges = sc.edges
+    inside = np.clip(np.minimum(edges[1:], w1) - np.maximum(edges[:-1], w0), 0, None)
+    counts = float(((lc["expected"].values[0] + lc["background"].values[0]) * inside).sum())
+    deficit = float((lc["dimming_decrement"].values[0] * inside).sum())
+    assert float(ds["counts_post_window"].values[0]) == pytest.approx(counts, rel=1e-12)
+    assert float(ds["dimming_snr"].values[0]) == pytest.approx(deficit / np.sqrt(counts), rel=1e-12)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        det = sc.detection_probability(200, seed=3)
+    np.testing.assert_array_equal(ds["probability_lower"].values, det["probability_lower"].values)
+    np.testing.assert_array_equal(ds["probability_upper"].values, det["probability_upper"].values)
+    assert list(ds["instrument"].values) == ["sc-fe9"]
+
+
+def test_dimming_snr_is_deficit_over_root_counts():
+    from synthcorona.products.forecast import dimming_snr
+
+    np.testing.assert_allclose(dimming_snr([30.0, 5.0, 1.0], [900.0, 25.0, 0.0]), [1.0, 1.0, np.nan])
 
 
 def test_unbracketed_minimum_mass_is_a_note_with_the_probabilities(tmp_path):
