@@ -51,7 +51,7 @@ def _given_text(phase) -> str:
 
         band = Band.coerce(phase.band, "band")
         lo, hi = band.energy_kev
-        shape = "isothermal" if phase.width_dex is None else f"Gaussian of {number(phase.width_dex)} dex"
+        shape = "isothermal" if phase.width_logT is None else f"Gaussian of {number(phase.width_logT)} dex"
         return (f"measured flux {number(phase.flux.to_value(u.erg / u.s / u.cm ** 2))} erg s⁻¹ cm⁻² in "
                 f"{energy_range_text(lo, hi)}; {shape} at {temperature_text(phase.temperature.to_value(u.K))}, "
                 "emission measure solved from the flux")

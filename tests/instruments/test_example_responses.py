@@ -170,9 +170,9 @@ nh = "3e18 cm-2"
 density = "3e9 cm-3"
 [corona.dem]
 model = "gaussian"
-peak_temperature = "2.5 MK"
-width_dex = 0.2
-emission_measure = "3e52 cm-3"
+peak_logT = 6.39794   # 2.5 MK
+width_logT = 0.2
+total_em = "3e52 cm-3"
 [cme]
 mass = "1e18 g"
 source_temperature = "2.5 MK"
