@@ -26,7 +26,7 @@ file). Writes into the output folder:
   manifest.json         every file above with its size and SHA-256, the inputs, the seed, the command
 
 The output folder is checked before computing, locked while the run lasts and replaced whole (as for
-``forecast``).
+"forecast").
 """
 
 

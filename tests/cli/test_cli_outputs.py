@@ -156,8 +156,8 @@ def test_a_rerun_removes_the_earlier_runs_figures_and_report_and_keeps_other_fil
     assert sorted(os.listdir(out)) == ["bands.csv", "bands.ecsv", "detection_vs_mass.csv", "detection_vs_mass.ecsv",
                                        "forecast.nc", MANIFEST_NAME, "notes.txt", "report.md"]
     assert (out / "notes.txt").read_text() == "my notes"
-    assert ("the files of the previous run that this run did not write: detection_vs_mass.png, light_curves.png, "
-            "report.html, temperature_responses.png") in second
+    assert ("the files of the previous run that this run did not write: detection_vs_mass.png, effective_area.png, "
+            "light_curves.png, report.html, temperature_responses.png") in second
     assert "notes.txt, which no manifest lists: not from this run, left in place" in second
 
 

@@ -27,7 +27,7 @@ def no_flare(small_forecast):
             .replace('nh = "1e18 cm-2"\n', ""))
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
-        inputs = read_forecast_file(text, name="no_flare.toml")
+        inputs = read_forecast_file(text=text, name="no_flare.toml")
         return inputs, run_forecast(inputs, show_realisations=0)
 
 
