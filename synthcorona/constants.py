@@ -9,11 +9,13 @@ import astropy.constants as const
 import astropy.units as u
 import numpy as np
 
-__all__ = ["PARSEC_CM", "K_B_CGS", "K_B_KEV", "HC_KEV_ANGSTROM", "KEV_TO_ERG", "M_H_G", "M_P_G", "M_E_G", "AMU_G", "C_CGS",
+__all__ = ["PARSEC_CM", "AU_CM", "K_B_CGS", "K_B_KEV", "HC_KEV_ANGSTROM", "KEV_TO_ERG", "M_H_G", "M_P_G", "M_E_G", "AMU_G", "C_CGS",
            "DEFAULT_LOGT_GRID"]
 
 #: One parsec in cm (IAU 2015, through astropy.units).
 PARSEC_CM = float((1.0 * u.pc).to_value(u.cm))
+#: One astronomical unit in cm (IAU 2012 exact definition, through astropy.units).
+AU_CM = float((1.0 * u.AU).to_value(u.cm))
 #: Boltzmann constant in erg K^-1 (CODATA 2018).
 K_B_CGS = float(const.k_B.cgs.value)
 #: Boltzmann constant in keV K^-1 (CODATA 2018).

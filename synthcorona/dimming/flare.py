@@ -72,8 +72,9 @@ scaling laws of Rosner, Tucker & Vaiana (1978, ApJ 220, 643), :math:`T_{max} \ap
 1400\,(pL)^{1/3}`; the equilibrium apex temperature lies 11–20 % above that law for
 the KPC08 loss function and pL = 1e9–2e11 dyn cm-1 (see ``tests/dimming/test_flare.py``). The
 flare energy is an explicit input: flare energies vs. soft-X-ray class have a scatter of an
-order of magnitude (e.g. Emslie et al. 2012, ApJ 759, 71); the rough class -> energy rule used
-for scenario files is :func:`~synthcorona.dimming.flare_energy.flare_energy_from_class`.
+order of magnitude (e.g. Emslie et al. 2012, ApJ 759, 71). A scenario's flare is an arcade of
+these loops set up so that its own peak 1-8 Angstrom flux matches its class
+(:mod:`synthcorona.dimming.flare_class`).
 
 Cooling times are in :mod:`synthcorona.dimming.flare_cooling`, the energy bookkeeping of a run in
 :mod:`synthcorona.dimming.flare_energy`.

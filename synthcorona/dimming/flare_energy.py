@@ -19,16 +19,15 @@ the run's emission measure and temperature histories for folding through instrum
 
 Flare class -> energy
 ---------------------
-:func:`flare_energy_from_class` converts a soft-X-ray flare class (the standard solar
-classification by the peak 1-8 Angstrom flux at 1 AU) to a total flare energy,
-E = 1e32 erg x F_peak / (1e-4 W m-2). Flare energies vs. class have a scatter of an order of
-magnitude (e.g. Emslie et al. 2012, ApJ 759, 71), so the loop model itself takes the energy as
-an explicit input and this rule is only used where a scenario gives a class.
+:func:`flare_energy_from_class` gives the heating energy of a soft-X-ray class (the peak 1-8
+Angstrom flux at 1 AU, true scale) by the rule of :mod:`synthcorona.dimming.flare_class`: the
+arcade of default strands whose own peak 1-8 Angstrom flux equals the class flux, on the flare
+EM-T relation. Flare energies vs. class scatter by about an order of magnitude between events
+(e.g. Emslie et al. 2012, ApJ 759, 71); the loop model itself takes the energy as an explicit input.
 """
 from __future__ import annotations
 
 import math
-import re
 from typing import NamedTuple
 
 import astropy.units as u
@@ -38,17 +37,15 @@ from scipy.integrate import trapezoid
 from scipy.special import erf
 
 from ..errors import InputError
+from ..instruments.soft_xray_monitor import CLASS_LETTER_FLUX
 
 __all__ = ["HeatingProfile", "EnergyBudget", "energy_budget", "FlareEMTemperature", "flare_em_temperature",
-           "FLARE_CLASS_FLUX", "X1_ENERGY_ERG", "flare_energy_from_class"]
+           "FLARE_CLASS_FLUX", "flare_energy_from_class"]
 
 _FWHM_PER_SIGMA = 2.0 * math.sqrt(2.0 * math.log(2.0))
-#: Peak 1-8 Angstrom flux (W m-2) at 1 AU of class letter 1.0 (standard solar soft-X-ray classification).
-FLARE_CLASS_FLUX = {"A": 1e-8, "B": 1e-7, "C": 1e-6, "M": 1e-5, "X": 1e-4}
-#: Total flare energy of an X1 flare (peak 1-8 Angstrom flux 1e-4 W m-2 at 1 AU).
-X1_ENERGY_ERG = 1e32
-
-_CLASS_RE = re.compile(r"^\s*([ABCMX])\s*([0-9]+(?:\.[0-9]*)?)\s*$", re.IGNORECASE)
+#: Peak 1-8 Angstrom flux (W m-2, true scale) at 1 AU of class letter 1.0
+#: (:data:`synthcorona.instruments.soft_xray_monitor.CLASS_LETTER_FLUX`).
+FLARE_CLASS_FLUX = CLASS_LETTER_FLUX
 
 
 # ----------------------------------------------------------------------------- heating profile
@@ -179,24 +176,25 @@ def flare_em_temperature(result: xr.Dataset) -> FlareEMTemperature:
 
 # ----------------------------------------------------------------------------- flare class
 
-def flare_energy_from_class(flare_class: str) -> u.Quantity:
-    """Total flare energy [erg] for a soft-X-ray flare class such as ``"M2.5"``.
+def flare_energy_from_class(flare_class: str, *, table=None, abundances="coronal", density=1e9 * u.cm ** -3,
+                            **strand) -> u.Quantity:
+    """Heating energy [erg] that makes a flare of the default strands reach its soft-X-ray class.
 
-    E = 1e32 erg x F_peak / (1e-4 W m-2), with F_peak the class's peak 1-8 Angstrom flux at
-    1 AU (:data:`FLARE_CLASS_FLUX`): an X1 flare releases ~1e32 erg in total, the order of the
-    bolometric energies of X-class solar flares found by Emslie et al. (2012, ApJ 759, 71)
-    (from memory; the linear proportionality to the peak flux is common practice, no source, and
-    the scatter between events is about an order of magnitude). For a star, the class is the
-    flux the flare would produce at 1 AU from the star.
+    The rule of :mod:`synthcorona.dimming.flare_class` (an arcade on the flare EM-T relation whose own
+    peak 1-8 Angstrom flux at 1 AU, true scale, is the class flux) for strands of the defaults of
+    :class:`~synthcorona.dimming.scenario.Flare` (half-length 2e9 cm, cross-section 1e18 cm2, 2 MK,
+    600 s), or of the ``strand`` keywords given (``loop_half_length``, ``loop_cross_section``,
+    ``initial_temperature``, ``duration``), with the emission of ``table`` (default the embedded
+    one) at ``abundances`` and ``density``. For a star, the class is the flux the flare would have
+    at 1 AU from the star.
     """
-    if not isinstance(flare_class, str):
-        raise InputError(f"class={flare_class!r} must be a string like \"M2.5\"")
-    m = _CLASS_RE.match(flare_class)
-    if not m:
-        raise InputError(f"class=\"{flare_class}\" is not a flare class; write a letter A, B, C, M or X and a "
-                         "number, e.g. \"M2.5\" or \"X10\"")
-    mult = float(m.group(2))
-    if not 0 < mult < 1e4:
-        raise InputError(f"class=\"{flare_class}\": the number must be in (0, 1e4)")
-    flux = FLARE_CLASS_FLUX[m.group(1).upper()] * mult
-    return X1_ENERGY_ERG * flux / 1e-4 * u.erg
+    from ..emissivity import resolve_table
+    from .flare_class import StrandSpec, class_rule
+    from .scenario import Flare
+
+    f = Flare(flare_class=flare_class, **strand)
+    spec = StrandSpec(float(f.loop_half_length.to_value(u.cm)), float(f.loop_cross_section.to_value(u.cm ** 2)),
+                      float(f.initial_temperature.to_value(u.K)), float(f.duration.to_value(u.s)))
+    dens = float(u.Quantity(density, u.cm ** -3).value)
+    rule = class_rule(spec, resolve_table(table), abundances, dens, f.em_t_relation)
+    return rule.for_class(flare_class).heating_energy * u.erg

@@ -31,7 +31,7 @@ from ..errors import InputError
 from ..validation import as_scalar
 from . import mass_removal as mr
 from . import profile as prof
-from .flare import LoopFlareModel
+from .flare_class import ArcadeSetup, ClassRule, StrandSpec, class_rule, flare_summary
 
 __all__ = ["MIN_QUIESCENT_RATE", "SourcePlasma", "BandKernels", "BandRates", "TimeProfile", "FlareExcess",
            "PreparedScenario", "prepare_scenario", "prepare_source", "prepare_kernels", "prepare_rates",
@@ -156,6 +156,17 @@ class FlareExcess:
     result: xr.Dataset | None = None
     #: Texts of the warnings of the flare run.
     warnings: tuple = ()
+    #: The arcade the flare was run as (:class:`~synthcorona.dimming.flare_class.ArcadeSetup`; None without a flare).
+    setup: ArcadeSetup | None = None
+    #: (n_t,) W m-2: reported 1-8 Angstrom flux at 1 AU over the pre-flare arcade (true scale; None without a flare).
+    monitor_excess: np.ndarray | None = None
+    #: The class rule of the flare (:class:`~synthcorona.dimming.flare_class.ClassRule`; None without a flare).
+    rule: ClassRule | None = None
+
+    def summary(self, attrs: dict | None = None) -> xr.Dataset:
+        """Peak 1-8 Angstrom flux, implied class, peak T and EM, heating and radiated 1-8 Angstrom energy
+        (:func:`~synthcorona.dimming.flare_class.flare_summary`)."""
+        return flare_summary(self.result, self.monitor_excess, self.setup, self.rule, attrs)
 
     def binned(self, edges, t0) -> np.ndarray:
         """Bin-averaged excess rates (n_b, n_bins) [ct/s] for bin edges [s] and CME onset ``t0`` [s]."""
@@ -325,29 +336,25 @@ def prepare_flare(flare, kernels: BandKernels, source: SourcePlasma, timing: Tim
                   table) -> FlareExcess:
     """The flare's excess rates per band on the loop model's output times, and their running integral.
 
-    The loop's radiative loss is the table's Λ at the source's emissivity density.
+    The arcade (strand count and energy) comes from the flare's class or energy by the rule of
+    :mod:`synthcorona.dimming.flare_class`; the loops' radiative loss is the table's Λ at the
+    source's emissivity density, and so is the 1-8 Angstrom monitor response of the class.
     """
     n_b = len(kernels.labels)
     if flare is None:
         return FlareExcess("no flare", np.array([0.0, 1.0]), np.zeros((n_b, 2)))
-    from ..synthesis import radiative_loss
-
     dur = float(flare.duration.to_value(u.s))
     delay = float(flare.delay.to_value(u.s))
     t_end = float(timing.edges[-1]) + dur + delay
-    dens = source.emissivity_density * u.cm ** -3
-    abund = corona.abundances
-
-    def table_loss_at_source_density(temperature):
-        return radiative_loss(temperature, table=table, abundances=abund, density=dens)
-
-    model = LoopFlareModel(flare.loop_half_length, flare.loop_cross_section,
-                           initial_temperature=flare.initial_temperature, flare_energy=flare.energy,
-                           peak_time=(delay + 0.5 * dur) * u.s, duration=dur * u.s,
-                           radiative_loss=table_loss_at_source_density)
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        res = model.run(t_end * u.s, n_output=3001)
+    spec = StrandSpec(float(flare.loop_half_length.to_value(u.cm)), float(flare.loop_cross_section.to_value(u.cm ** 2)),
+                      float(flare.initial_temperature.to_value(u.K)), dur)
+    rule = class_rule(spec, table, corona.abundances, source.emissivity_density, flare.em_t_relation)
+    n = None if flare.n_strands is None else float(flare.n_strands)
+    if flare.flare_class is not None:
+        setup = rule.for_class(flare.flare_class, n)
+    else:
+        setup = rule.for_energy(float(flare.energy.to_value(u.erg)), n)
+    res, caught = rule.run(setup.n_strands, setup.strand_energy, t_end, peak_time=delay + 0.5 * dur, n_output=3001)
     term = str(res.attrs["termination"])
     t = res["time"].values
     em = res["emission_measure"].values
@@ -356,4 +363,4 @@ def prepare_flare(flare, kernels: BandKernels, source: SourcePlasma, timing: Tim
     cum = cumulative_trapezoid(excess, t, axis=1, initial=0.0)
     if term != "reached t_end":
         term = term + "; flare excess taken as zero after the stop"
-    return FlareExcess(term, t, cum, res, tuple(str(w.message) for w in caught))
+    return FlareExcess(term, t, cum, res, caught, setup=setup, monitor_excess=rule.excess_flux(res), rule=rule)

@@ -5,7 +5,9 @@ r"""A complete CME-dimming forecast: star, corona, CME, flare, instrument and ob
 * the mass-loss depth per band (:mod:`synthcorona.dimming.mass_removal`),
 * its time profile (:mod:`synthcorona.dimming.profile`),
 * the associated flare, from the 0D loop model :class:`~synthcorona.dimming.flare.LoopFlareModel`
-  folded through each band's temperature response,
+  (an arcade of strands that reaches the flare's class or energy by the rule of
+  :mod:`synthcorona.dimming.flare_class`; :meth:`DimmingScenario.flare_summary`) folded through
+  each band's temperature response,
 * Poisson realisations (:mod:`synthcorona.dimming.noise`), optionally with the red noise of
   ``Observation.red_noise`` (a damped random walk of the source rate), and detection probabilities
   (:mod:`synthcorona.dimming.detection`) whose thresholds are calibrated on event-free light curves
@@ -46,7 +48,7 @@ area.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import astropy.units as u
@@ -157,23 +159,45 @@ class CME:
 
 @dataclass(frozen=True)
 class Flare:
-    """The flare accompanying the CME, run with :class:`~synthcorona.dimming.flare.LoopFlareModel`.
+    """The flare accompanying the CME: an arcade of identical strands of the 0-D loop model
+    (:class:`~synthcorona.dimming.flare.LoopFlareModel`), set up by :mod:`synthcorona.dimming.flare_class`.
 
-    ``energy`` (> 0 erg), ``loop_half_length`` (default 2e9 cm), ``loop_cross_section``
-    (default 1e18 cm2), ``initial_temperature`` of the loop's static equilibrium (default 2 MK),
-    heating ``duration`` (base width of a triangular profile, default 600 s) starting ``delay``
-    after the CME onset (default 0 s).
+    Give **either** ``energy`` (total heating energy, > 0 erg) **or** ``flare_class`` (e.g. ``"M2.5"``:
+    the peak 1-8 Angstrom flux at 1 AU, true scale, that the flare is made to reach). The strands have
+    half-length ``loop_half_length`` (default 2e9 cm), cross-section ``loop_cross_section`` (default
+    1e18 cm2) and start in static equilibrium at ``initial_temperature`` (default 2 MK); the heating
+    has a triangular profile of base ``duration`` (default 600 s) starting ``delay`` after the CME
+    onset (default 0 s). ``n_strands``: None (default) puts the flare on the EM-T relation
+    ``em_t_relation`` ("solar" or "stellar"); a number (> 0) fixes the arcade instead (1: all the
+    energy in one loop).
     """
 
-    energy: u.Quantity
+    energy: u.Quantity | None = None
     loop_half_length: u.Quantity = field(default_factory=lambda: 2e9 * u.cm)
     loop_cross_section: u.Quantity = field(default_factory=lambda: 1e18 * u.cm ** 2)
     initial_temperature: u.Quantity = field(default_factory=lambda: 2e6 * u.K)
     duration: u.Quantity = field(default_factory=lambda: 600 * u.s)
     delay: u.Quantity = field(default_factory=lambda: 0 * u.s)
+    flare_class: str | None = None
+    n_strands: float | None = None
+    em_t_relation: str = "solar"
 
     def __post_init__(self):
-        _scalar("energy", self.energy, u.erg, lo=0.0, unit_label="erg", inclusive=False)
+        from ..instruments.soft_xray_monitor import class_flux
+        from .flare_class import RELATIONS
+
+        if (self.energy is None) == (self.flare_class is None):
+            raise InputError("give the flare's energy or its flare_class (one of them), e.g. Flare(1e31 * u.erg) "
+                             "or Flare(flare_class=\"M2.5\")", argument="energy")
+        if self.energy is not None:
+            _scalar("energy", self.energy, u.erg, lo=0.0, unit_label="erg", inclusive=False)
+        else:
+            class_flux(self.flare_class)
+        if self.n_strands is not None:
+            check_range("n_strands", self.n_strands, lo=0.0, hi=1e6, inclusive=False)
+        if self.em_t_relation not in RELATIONS:
+            raise InputError(f"em_t_relation={self.em_t_relation!r} must be one of {RELATIONS}",
+                             argument="em_t_relation")
         _scalar("duration", self.duration, u.s, lo=0.0, unit_label="s", inclusive=False)
         _scalar("delay", self.delay, u.s, lo=0.0, unit_label="s")
 
@@ -306,6 +330,27 @@ class DimmingScenario:
     def flare_termination(self) -> str:
         """How the flare run ended ("no flare", "reached t_end", or where and why it stopped)."""
         return self.prepared.flare.termination
+
+    @property
+    def resolved_flare(self) -> Flare | None:
+        """The flare as run: a :class:`Flare` with its heating ``energy`` and ``n_strands`` explicit (a scenario
+        built with it runs the same arcade); None without a flare."""
+        setup = self.prepared.flare.setup
+        if self.flare is None or setup is None:
+            return None
+        return replace(self.flare, energy=setup.heating_energy * u.erg, flare_class=None, n_strands=setup.n_strands)
+
+    def flare_summary(self) -> xr.Dataset:
+        """The flare against its class: ``peak_flux_1_8A`` [W m-2 at 1 AU, true scale], ``implied_class``,
+        ``peak_temperature`` [K], ``peak_emission_measure`` [cm-3], ``heating_energy`` [erg],
+        ``radiated_energy_1_8A`` [erg] (and ``n_strands``, ``strand_energy``, ``peak_flux_1_8A_legacy``), from
+        the scenario's own flare run folded through the 1-8 Angstrom monitor response
+        (:mod:`synthcorona.dimming.flare_class`); units in each variable's attrs. Without a flare: zero
+        energies and fluxes, NaN temperature and EM, an empty class."""
+        attrs = {"flare_termination": self.prepared.flare.termination}
+        if self.flare is not None and self.flare.flare_class is not None:
+            attrs["flare_class_requested"] = self.flare.flare_class
+        return self.prepared.flare.summary(attrs)
 
     # ------------------------------------------------------------------ building blocks
     def _mass_g(self, mass):

@@ -10,6 +10,8 @@
   detector) from :mod:`.optics` and :mod:`.multilayer`.
 * observables (:mod:`.observables`) -- :func:`observed_flux`, :func:`band_luminosity`,
   :func:`hardness_ratio`, :func:`hardness_ratio_curve`, :func:`counts_to_flux`.
+* :mod:`.soft_xray_monitor` -- the long (1-8 Angstrom) channel of the standard solar soft-X-ray flux
+  monitor, built from its physics, and the flare-class flux scale.
 * plotting -- :mod:`synthcorona.plotting.instruments` (imported on use: needs matplotlib).
 """
 from ..errors import InstrumentFileError, InstrumentFileWarning

@@ -9,8 +9,10 @@ default and valid range is documented in ``docs/scenario_reference.md``.
 
 A flare may be given by its soft-X-ray class (``class = "M2.5"``): the letter gives the decade of
 the peak 1-8 Angstrom flux at 1 AU from the star, the number multiplies it (A 1e-8, B 1e-7,
-C 1e-6, M 1e-5, X 1e-4 W m-2; the standard solar classification). It is converted to a total flare
-energy with :func:`flare_energy_from_class`.
+C 1e-6, M 1e-5, X 1e-4 W m-2, true scale; the standard solar classification). The scenario then
+sets the flare up so that its own peak 1-8 Angstrom flux is the class flux
+(:mod:`synthcorona.dimming.flare_class`; :func:`flare_energy_from_class` gives the heating energy of
+the default strands).
 """
 from __future__ import annotations
 
@@ -142,13 +144,16 @@ class ForecastInputs:
                                obs, table=table, **kw)
 
     def with_scenario(self, table=None) -> "ForecastInputs":
-        """These inputs with ``scenario`` built on ``table`` (:meth:`build_scenario`); a mistake the
+        """These inputs with ``scenario`` built on ``table`` (:meth:`build_scenario`) and ``flare`` replaced by
+        the flare as run (:attr:`DimmingScenario.resolved_flare`: heating energy and strand count explicit,
+        so a class is resolved to its energy; ``flare_class`` keeps the file's class); a mistake the
         scenario finds (e.g. a CME mass above what the corona holds) raises a :class:`ScenarioError`
         naming the file and the table it belongs to."""
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
             scenario = _wrap(Section({}, "", self.source), None, self.build_scenario, table=table)
-        return dataclasses.replace(self, scenario=scenario)
+        flare = self.flare if scenario.resolved_flare is None else scenario.resolved_flare
+        return dataclasses.replace(self, scenario=scenario, flare=flare)
 
 
 # ----------------------------------------------------------------------------- sections
@@ -233,7 +238,9 @@ def _cme(root: Section):
 
 
 def _flare(root: Section):
+    from ..dimming.flare_class import RELATIONS
     from ..dimming.scenario import Flare
+    from ..instruments.soft_xray_monitor import class_flux
 
     f = root.section("flare", required=False)
     if f is None:
@@ -243,9 +250,10 @@ def _flare(root: Section):
     cls = None
     if f.has("class"):
         cls = f.string("class")
-        energy = _wrap(f, "class", flare_energy_from_class, cls)
+        _wrap(f, "class", class_flux, cls)
+        given = dict(flare_class=cls)
     else:
-        energy = f.quantity("energy", u.erg, required=True, lo=0.0, lo_inclusive=False, hi=1e40)
+        given = dict(energy=f.quantity("energy", u.erg, required=True, lo=0.0, lo_inclusive=False, hi=1e40))
     kw = dict(
         loop_half_length=f.quantity("loop_half_length", u.cm, default=2e9 * u.cm, lo=1e7, hi=1e13),
         loop_cross_section=f.quantity("loop_cross_section", u.cm ** 2, default=1e18 * u.cm ** 2, lo=0.0,
@@ -253,9 +261,11 @@ def _flare(root: Section):
         initial_temperature=f.quantity("initial_temperature", u.K, default=2e6 * u.K, lo=1e5, hi=1e8),
         duration=f.quantity("duration", u.s, default=600 * u.s, lo=0.0, lo_inclusive=False, hi=1e6),
         delay=f.quantity("delay", u.s, default=0 * u.s, lo=0.0, hi=1e6),
+        n_strands=f.number("n_strands", default=None, lo=0.0, lo_inclusive=False, hi=1e6, hi_inclusive=False),
+        em_t_relation=f.string("em_t_relation", default="solar", choices=RELATIONS),
     )
     f.finish()
-    return _wrap(f, None, Flare, energy=energy, **kw), cls
+    return _wrap(f, None, Flare, **given, **kw), cls
 
 
 _MIRROR_KEYS = {

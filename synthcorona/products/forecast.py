@@ -8,6 +8,9 @@
   exponential-recovery profile (:mod:`synthcorona.dimming.profile`);
 * flare contamination: the peak flare excess against the peak dimming decrement, and their
   counts in the post-event window of the window test (the flare fills in the dimming there);
+* the flare against its class (:meth:`DimmingScenario.flare_summary`): its own peak 1-8 Angstrom flux
+  at 1 AU, implied class, peak temperature and emission measure, heating energy, radiated 1-8
+  Angstrom energy and strand count;
 * the net depth of the expected light curve (flare included), max over bins of (q - r) / q;
 * the detection probability at the scenario's CME mass and at every mass of the mass grid
   (:meth:`DimmingScenario.detection_probability`, injection-recovery with the same seed at
@@ -319,6 +322,17 @@ def _curve_variables(sc, lc, inputs) -> dict:
     }
 
 
+def _flare_variables(sc) -> tuple[dict, dict]:
+    """The flare against its class (:meth:`DimmingScenario.flare_summary`): scalar variables and attrs."""
+    from ..dimming.flare_class import SUMMARY_VARIABLES
+
+    fs = sc.flare_summary()
+    data = {k: ((), fs[k].values.item(), dict(fs[k].attrs)) for k in SUMMARY_VARIABLES + ("n_strands",)}
+    attrs = {"flare_rule": fs.attrs["flare_rule"],
+             "flare_class_flux_convention": fs.attrs["flare_class_flux_convention"]}
+    return data, attrs
+
+
 def _attrs(sc, table, inputs, n, seed, stat, bracket, mass_note, window) -> dict:
     """Provenance: the scenario's settings, the scenario file's text and hash, the Monte Carlo and the table."""
     attrs = {k: (v if isinstance(v, (str, int, float)) else str(v)) for k, v in sc.result_attrs().items()}
@@ -330,7 +344,7 @@ def _attrs(sc, table, inputs, n, seed, stat, bracket, mass_note, window) -> dict
         "scenario_sha256": hashlib.sha256(text.encode("utf-8")).hexdigest(),
         "scenario_toml": text,
         "star_name": inputs.star_name or "",
-        "flare_energy_erg": float(inputs.flare.energy.to_value(u.erg)) if inputs.flare is not None else 0.0,
+        "flare_energy_erg": float(sc.resolved_flare.energy.to_value(u.erg)) if sc.flare is not None else 0.0,
         "flare_class": inputs.flare_class or "",
         "n_realisations": n,
         "seed": seed,
@@ -374,7 +388,9 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
     -------
     xarray.Dataset
         Over ``band``, ``mass`` (the mass grid, g), ``time`` (bin centres, s),
-        ``realisation`` and ``logT``; see the variables' ``long_name`` and ``units`` attrs.
+        ``realisation`` and ``logT``, and the flare's scalars (``peak_flux_1_8A``, ``implied_class``,
+        ``peak_temperature``, ``peak_emission_measure``, ``heating_energy``, ``radiated_energy_1_8A``,
+        ``n_strands``); see the variables' ``long_name`` and ``units`` attrs.
     """
     mc = inputs.montecarlo
     n = check_realisations(int(mc.realisations if realisations is None else realisations),
@@ -397,8 +413,9 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
     grid, vs_mass, mass_note = _mass_grid_products(sc, inputs, n, stat, sd)
     min_mass, bracket = _minimum_mass_products(sc, inputs, grid, n, stat, sd)
 
+    flare_vars, flare_attrs = _flare_variables(sc)
     data = {**_depth_variables(sc, d, lc_vars.pop("net_depth")), **lc_vars, **_detection_variables(det, stat),
-            **vs_mass, **min_mass, **_curve_variables(sc, lc, inputs)}
+            **vs_mass, **min_mass, **_curve_variables(sc, lc, inputs), **flare_vars}
     if nshow > 0:
         data["counts"] = (("realisation", "band", "time"), lc["counts"].values,
                           {"units": "ct", "long_name": "Poisson realisations with CME (background included)"})
@@ -410,7 +427,7 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
               "band_lo": ("band", sc.prepared.kernels.band_limits[:, 0], {"units": "keV"}),
               "band_hi": ("band", sc.prepared.kernels.band_limits[:, 1], {"units": "keV"}),
               "instrument": ("band", [ins.name for _, ins, _ in sc.channels])}
-    attrs = _attrs(sc, tab, inputs, n, sd, stat, bracket, mass_note, window)
+    attrs = {**_attrs(sc, tab, inputs, n, sd, stat, bracket, mass_note, window), **flare_attrs}
     return xr.Dataset(data, coords=coords, attrs=attrs)
 
 

@@ -1,8 +1,8 @@
 """Tests of the flare heating profile, energy budget and class -> energy rule (synthcorona.dimming.flare_energy).
 
 Expected values: the energy input of the heating profile by construction (the whole flare energy is
-deposited at t >= 0); the class -> energy rule E = 1e32 erg x F_peak / (1e-4 W m-2) with the standard
-soft-X-ray class fluxes (A 1e-8 ... X 1e-4 W m-2), as documented in the module.
+deposited at t >= 0); the standard soft-X-ray class fluxes (A 1e-8 ... X 1e-4 W m-2). The class -> energy
+rule itself is tested in tests/dimming/test_flare_class.py.
 """
 import astropy.units as u
 import numpy as np
@@ -74,11 +74,11 @@ def test_energy_budget_needs_a_run():
         energy_budget({"temperature": 1})
 
 
-@pytest.mark.parametrize("flare_class,energy_erg", [("X1", 1e32), ("M2.5", 2.5e31), ("c3", 3e30), (" B 4.0 ", 4e29),
-                                                    ("A1", 1e28), ("X10", 1e33)])
-def test_flare_energy_from_class(flare_class, energy_erg):
-    # E = 1e32 erg x F_peak / (1e-4 W m-2): X1 -> 1e32 erg, M2.5 -> 2.5e31 erg, ... (the documented rule)
-    assert flare_energy_from_class(flare_class).to_value(u.erg) == pytest.approx(energy_erg, rel=1e-12)
+def test_flare_energy_from_class_is_the_class_rule():
+    # the heating energy of the class rule (synthcorona.dimming.flare_class) for the default strands; the class
+    # letters are decades of flux (A 1e-8 ... X 1e-4 W m-2), so a higher class needs more energy
+    energies = [flare_energy_from_class(c).to_value(u.erg) for c in ("C1", "M1", "X1")]
+    assert energies[0] < energies[1] < energies[2]
     assert FLARE_CLASS_FLUX["X"] == 1e-4 and FLARE_CLASS_FLUX["A"] == 1e-8
 
 

@@ -96,17 +96,36 @@ def test_mass_grid_forms(tmp_path):
 
 
 def test_flare_class_scaling():
-    # Soft-X-ray class letters are decades of the peak 1-8 A flux: C = 1e-6, M = 1e-5, X = 1e-4 W m-2 (NOAA
-    # classification); E = 1e32 erg for X1 (Emslie et al. 2012, ApJ 759, 71; order of magnitude, from memory).
-    assert flare_energy_from_class("X1").to_value(u.erg) == pytest.approx(1e32, rel=1e-12)
-    assert flare_energy_from_class("M2.5").to_value(u.erg) == pytest.approx(2.5e31, rel=1e-12)
-    assert flare_energy_from_class("c3").to_value(u.erg) == pytest.approx(3e30, rel=1e-12)
+    # Soft-X-ray class letters are decades of the peak 1-8 A flux: C = 1e-6, M = 1e-5, X = 1e-4 W m-2 (the standard
+    # classification). flare_energy_from_class gives the heating energy of the class rule of
+    # synthcorona.dimming.flare_class: it grows with the class and is case- and space-insensitive.
+    e_c3, e_m25, e_x1 = (flare_energy_from_class(c).to_value(u.erg) for c in ("c3", "M2.5", "X1"))
+    assert e_c3 < e_m25 < e_x1
+    assert flare_energy_from_class(" x 1.0 ").to_value(u.erg) == pytest.approx(e_x1, rel=1e-12)
 
 
 def test_flare_class_in_file(tmp_path):
-    fi = _read(tmp_path, BASE.replace('energy = "1e32 erg"', 'class = "X5"'))
-    assert fi.flare.energy.to_value(u.erg) == pytest.approx(5e32, rel=1e-12)
-    assert fi.flare_class == "X5"
+    text = BASE.replace('energy = "1e32 erg"', 'class = "X5"\nn_strands = 3\nem_t_relation = "stellar"')
+    fi = _read(tmp_path, text)
+    assert fi.flare.flare_class == "X5" and fi.flare.energy is None and fi.flare_class == "X5"
+    assert fi.flare.n_strands == 3 and fi.flare.em_t_relation == "stellar"
+    # built: the flare as run has its heating energy explicit, and its own peak 1-8 A flux is the class flux
+    # (X5 = 5e-4 W m-2, within the 10 % the rule promises; synthcorona.dimming.flare_class)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        built = read_forecast_file(_write(tmp_path, BASE.replace('energy = "1e32 erg"', 'class = "X5"')))
+    assert built.flare_class == "X5" and built.flare.flare_class is None
+    summary = built.scenario.flare_summary()
+    assert built.flare.energy.to_value(u.erg) == pytest.approx(float(summary["heating_energy"]), rel=1e-12)
+    assert float(summary["peak_flux_1_8A"]) == pytest.approx(5e-4, rel=0.1)
+
+
+@pytest.mark.parametrize("line,key", [('n_strands = 0', "n_strands"), ('em_t_relation = "lunar"', "em_t_relation"),
+                                      ('class = "Q1"', "class")])
+def test_flare_keys_are_checked(tmp_path, line, key):
+    text = BASE.replace('energy = "1e32 erg"', 'energy = "1e32 erg"\n' + line if key != "class" else line)
+    with pytest.raises(ScenarioError, match=key):
+        _read(tmp_path, text)
 
 
 def test_physics_built_instrument_matches_the_api(tmp_path):

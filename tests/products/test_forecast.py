@@ -123,6 +123,32 @@ def test_dimming_snr_is_deficit_over_root_counts():
     np.testing.assert_allclose(dimming_snr([30.0, 5.0, 1.0], [900.0, 25.0, 0.0]), [1.0, 1.0, np.nan])
 
 
+def test_flare_summary_is_in_the_forecast(small_forecast, same_scenario, tmp_path):
+    """The forecast carries DimmingScenario.flare_summary() (same numbers) with units, also through netCDF."""
+    import xarray as xr
+
+    from synthcorona.io.writers import write_netcdf
+
+    _, ds = small_forecast
+    fs = same_scenario.flare_summary()
+    units = {"peak_flux_1_8A": "W m-2", "implied_class": "", "peak_temperature": "K", "peak_emission_measure": "cm-3",
+             "heating_energy": "erg", "radiated_energy_1_8A": "erg", "n_strands": "1"}
+    for name, unit in units.items():
+        assert ds[name].attrs["units"] == unit and ds[name].ndim == 0
+        if name == "implied_class":
+            assert str(ds[name].values) == str(fs[name].values) and str(ds[name].values)[0] in "ABCMX"
+        else:
+            assert float(ds[name]) == pytest.approx(float(fs[name]), rel=1e-12), name
+    # the scenario file's 1e31 erg is the heating energy (the class follows from it by the same rule)
+    assert float(ds["heating_energy"]) == pytest.approx(1e31, rel=1e-12)
+    assert "EM-T relation" in ds.attrs["flare_rule"]
+    path = tmp_path / "f.nc"
+    write_netcdf(ds[list(units)], path)
+    with xr.open_dataset(path) as back:
+        assert str(back["implied_class"].values) == str(ds["implied_class"].values)
+        assert float(back["peak_flux_1_8A"]) == pytest.approx(float(ds["peak_flux_1_8A"]), rel=1e-12)
+
+
 def test_unbracketed_minimum_mass_is_a_note_with_the_probabilities(tmp_path):
     # a grid of tiny masses: the bracket [1e10/100, 1e11*100] g never reaches P = 0.5
     text = (DATA / "small_forecast.toml").read_text().replace(
