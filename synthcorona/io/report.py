@@ -28,7 +28,6 @@ from .report_render import (
     energy_range_text,
     number,
     plus_minus,
-    power_of_ten,
     probability_text,
     render,
     temperature_text,
@@ -116,18 +115,28 @@ def _nh_text(nh_cm2: float) -> str:
     return (f"N_H = {number(nh_cm2)} cm⁻²" if nh_cm2 > 0 else "no interstellar absorption (N_H = 0 cm⁻²)")
 
 
-def _flare_text(inputs) -> str:
-    from ..dimming.flare_energy import X1_ENERGY_ERG
-
+def _flare_text(ds, inputs) -> str:
     f = inputs.flare
-    if f is None:
+    if f is None and not inputs.flare_class:
         return "none"
-    text = f"energy {number(f.energy.to_value(u.erg))} erg"
+    text = ""
+    if "heating_energy" in ds:
+        text = f"heating energy {number(float(ds['heating_energy']))} erg"
+        if "implied_class" in ds:
+            text += f", class {str(ds['implied_class'].values)}"
+        if "peak_flux_1_8A" in ds:
+            text += f" (own peak 1–8 Å flux {number(float(ds['peak_flux_1_8A']))} W m⁻² at 1 AU"
+            if "n_strands" in ds:
+                text += f"; an arcade of {number(float(ds['n_strands']))} strands on the flare EM–T relation"
+            text += ")"
+    elif f is not None and f.energy is not None:
+        text = f"energy {number(f.energy.to_value(u.erg))} erg"
     if inputs.flare_class:
-        text += (f" from class {inputs.flare_class} with synthcorona's rule E = {number(X1_ENERGY_ERG)} erg × "
-                 f"F(1–8 Å) / {power_of_ten(-4)} W m⁻² (no published calibration: an order of magnitude)")
-    return (text + f"; loop half-length {number(f.loop_half_length.to_value(u.cm))} cm, heating over "
-                   f"{number(f.duration.to_value(u.s))} s")
+        text += f"; given as class {inputs.flare_class}"
+    if f is not None:
+        text += (f"; strand half-length {number(f.loop_half_length.to_value(u.cm))} cm, heating over "
+                 f"{number(f.duration.to_value(u.s))} s")
+    return text
 
 
 def _peak_area_text(inst) -> str:
@@ -160,7 +169,7 @@ def _setting_rows(ds, inputs) -> list[list[str]]:
             ["CME", f"mass {number(cme.mass.to_value(u.g))} g from {temperature_text(cme.source_temperature.to_value(u.K))}"
                     f" plasma of {number(ds.attrs['source_density_cm-3'])} cm⁻³, speed "
                     f"{number(cme.speed.to_value(u.km / u.s))} km s⁻¹, escaping fraction {number(cme.escape_fraction)}"],
-            ["Flare", _flare_text(inputs)]]
+            ["Flare", _flare_text(ds, inputs)]]
     rows += _instrument_rows(inputs)
     rows.append(["Observation", f"{_hours(ds.attrs['exposure_s'])} in {number(ds.attrs['bin_width_s'])} s bins, CME "
                                 f"{_hours(ds.attrs['cme_onset_time_s'])} after the start; background {bg_text}; "
