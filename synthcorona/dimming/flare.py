@@ -481,7 +481,9 @@ class LoopFlareModel:
         user_step = np.inf if max_step is None else self._positive_scalar("max_step", max_step, u.s).value
         out_t = self._output_times(te, n_output, times)
         t_all, y_all, termination = self._integrate(te, out_t, user_step, rtol)
-        return self._dataset(t_all, np.exp(y_all[0]), np.exp(y_all[1]), termination, rtol)
+        ds = self._dataset(t_all, np.exp(y_all[0]), np.exp(y_all[1]), termination, rtol)
+        ds.attrs["stopped_at"] = self._stopped_at
+        return ds
 
     def _segments(self, te):
         """Edges of the integration segments (the heating's start, peak and end inside (0, te)) and the largest
@@ -514,6 +516,7 @@ class LoopFlareModel:
         y = np.array([math.log(self._p0), math.log(self._n0)])
         ts, ys = [], []
         termination = "reached t_end"
+        self._stopped_at = ""
         for a, b in zip(edges[:-1], edges[1:]):
             heating_on = self._profile is not None and self._profile.start < b and a < self._profile.end
             step = min(user_step, heat_step if heating_on else np.inf, b - a)
@@ -529,6 +532,7 @@ class LoopFlareModel:
             y = sol.y[:, -1]
             if sol.status == 1:
                 which = "lower" if sol.t_events[0].size else "upper"
+                self._stopped_at = which
                 termination = (f"stopped at t = {t_stop:.6g} s: the temperature reached the {which} end of the "
                                f"radiative loss range [{self.loss.t_min:.4g}, {self.loss.t_max:.4g}] K")
                 ts.append(np.array([t_stop]))

@@ -400,6 +400,11 @@ class _PoissonTable:
 
 
 # ----------------------------------------------------------------------------- samplers
+#: Largest expected counts in one bin the Poisson sampler accepts: numpy's Generator.poisson refuses
+#: lam above about 1e19 ("lam value too large"); 1e18 keeps a margin for the red-noise factor.
+MAX_EXPECTED_COUNTS = 1e18
+
+
 class CountSampler:
     """Poisson realisations of a light curve of known expected count rate, in chunks.
 
@@ -472,6 +477,13 @@ class CountSampler:
         return self
 
     def _setup(self, mu, bg, centres, red_noise, groups):
+        total = mu if bg is None else mu + bg
+        if total.size and float(np.max(total)) > MAX_EXPECTED_COUNTS:
+            k = int(np.argmax(total))
+            raise InputError(f"expected counts per bin reach {float(total[k]):.3g} (bin {k}), above the "
+                             f"{MAX_EXPECTED_COUNTS:.3g} counts per bin the Poisson sampler handles (numpy's limit "
+                             "for its Poisson generator); lower the emission measure or the bin width, or move the "
+                             "star further away", argument="rate")
         self.expected = mu
         self.background = bg
         self.times = centres

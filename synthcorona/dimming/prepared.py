@@ -328,6 +328,13 @@ def prepare_timing(cme, corona, source: SourcePlasma, observation, recovery, upf
         abundances=corona.abundances).to_value(u.s))
     bin_width = float(observation.bin_width.to_value(u.s))
     n_bins = observation.n_bins
+    t0 = float(observation.pre_event.to_value(u.s))
+    after = n_bins * bin_width - t0
+    if onset >= after:
+        raise InputError(f"the dimming's onset time {onset:.4g} s is not shorter than the observation after the CME "
+                         f"({after:.4g} s = exposure - pre_event): the dimming would not reach its depth before the "
+                         f"observation ends; valid range of the CME onset: (0, {after:.4g}) s (or a longer exposure)",
+                         argument="onset")
     return TimeProfile(onset=onset, recovery_time=recovery_time, t0=float(observation.pre_event.to_value(u.s)),
                        bin_width=bin_width, n_bins=n_bins, edges=np.arange(n_bins + 1) * bin_width)
 
@@ -356,6 +363,12 @@ def prepare_flare(flare, kernels: BandKernels, source: SourcePlasma, timing: Tim
         setup = rule.for_energy(float(flare.energy.to_value(u.erg)), n)
     res, caught = rule.run(setup.n_strands, setup.strand_energy, t_end, peak_time=delay + 0.5 * dur, n_output=3001)
     term = str(res.attrs["termination"])
+    if res.attrs.get("stopped_at") == "upper":
+        # the strands got hotter than the emissivity table reaches: no emission to fold, so no silent zero
+        raise InputError(f"the flare ({setup.n_strands:.3g} strands of {setup.strand_energy:.3g} erg) heats its "
+                         f"strands above the table's {10 ** float(source.logT[-1]):.3g} K ({term}); its emission "
+                         "there is outside the model: give a smaller energy or class, or more strands "
+                         "([flare] n_strands)", argument="energy")
     t = res["time"].values
     em = res["emission_measure"].values
     k_t = kernels.at_log_temperature(source.logT, np.log10(res["temperature"].values))   # (n_b, n_t)

@@ -59,11 +59,12 @@ from ..constants import PARSEC_CM
 from ..dem import DEM
 from ..emissivity import resolve_table
 from ..errors import InputError
+from ..memory import check_allocation
 from ..validation import as_quantity, as_scalar, check_range
 from . import detection
 from . import mass_removal as mr
 from . import profile as prof
-from .noise import RedNoise, as_seed_sequence, poisson_counts
+from .noise import WORK_ARRAYS, RedNoise, as_seed_sequence, poisson_counts
 from .prepared import PreparedScenario, prepare_scenario
 
 __all__ = ["Star", "Corona", "CME", "Flare", "Observation", "DimmingScenario"]
@@ -229,6 +230,11 @@ class Observation:
                              f"exposure: [{bw:g} s, inf)")
         _scalar("pre_event", self.pre_event, u.s, lo=bw, hi=exp - bw, unit_label="s")
         check_range("false_alarm", self.false_alarm, lo=0.0, hi=0.5, inclusive=False)
+        # light curves and the Monte Carlo's work arrays hold a few dozen float64 values per bin and band
+        # (noise.WORK_ARRAYS per realisation row, a few rows at least): refuse before anything is allocated
+        n = self.n_bins
+        check_allocation(f"light curves of {n:,} bins", 8.0 * n * 4 * WORK_ARRAYS,
+                         "exposure or bin_width (fewer bins)", argument="bin_width")
 
     @property
     def n_bins(self) -> int:

@@ -229,8 +229,9 @@ def _minimum_mass_products(sc, inputs, grid, n, stat, seed) -> tuple[dict, tuple
     """Minimum detectable mass per band in a bracket of 1/100 of the smallest to 100 x the largest grid mass
     (at most the largest removable mass). Returns (variables over ``band``, bracket in g)."""
     mmax = float(sc.max_mass.to_value(u.g))
-    lo_b = (grid.min() if grid.size else float(inputs.cme.mass.to_value(u.g)) or 1e15) / 100.0
-    hi_b = min((grid.max() if grid.size else lo_b * 1e6) * 100.0, mmax)
+    positive = grid[grid > 0]      # a mass of 0 g (no CME) is a valid grid point but no end of a bracket in ln M
+    lo_b = (positive.min() if positive.size else float(inputs.cme.mass.to_value(u.g)) or 1e15) / 100.0
+    hi_b = min((positive.max() if positive.size else lo_b * 1e6) * 100.0, mmax)
     bracket = (lo_b * u.g, hi_b * u.g)
     nb = len(sc.labels)
     mm = np.full(nb, np.nan)
