@@ -18,7 +18,7 @@ import numpy as np
 
 from . import settings
 from .errors import InputError, TableFileError
-from .io.table_file import read_table
+from .io.table_file import PACKED_VARS, read_table
 from .validation import as_quantity, check_finite
 
 __all__ = ["EmissivityTable", "load_emissivity", "resolve_table", "DEFAULT_TABLE_NAME"]
@@ -69,6 +69,8 @@ class EmissivityTable:
             self._line_q = None
             self._line_eps_full = np.asarray(le.values)  # (line, n, T)
         self._line_planes: dict = {}
+        self._tp_partial = None  # two-photon continuum, decoded plane by plane (_tp_planes)
+        self._tp_done: set = set()
         # continua (el, T, E) and two-photon (el, n, T, E): decoded on first use when read lazily
         self._cont_raw = {k: (np.asarray(ds[v].values), dict(ds[v].attrs))
                           for k, v in (("ff", "cont_ff"), ("fb", "cont_fb"), ("2p", "cont_2p"))}
@@ -105,7 +107,26 @@ class EmissivityTable:
 
     @property
     def _tp(self) -> np.ndarray:
-        return self._cont("2p")
+        return self._tp_planes(range(self.log_density.size))
+
+    def _tp_planes(self, planes) -> np.ndarray:
+        """Two-photon continuum (el, n, T, E) with at least the density ``planes`` decoded (the others
+        may still be zero: a request decodes only the planes around its densities)."""
+        arr, attrs = self._cont_raw["2p"]
+        if not np.issubdtype(arr.dtype, np.integer):
+            return arr
+        if self._tp_partial is None:
+            self._tp_partial = np.zeros(arr.shape)
+        missing = sorted({int(k) for k in planes} - self._tp_done)
+        if missing:
+            from .io.table_file import decode_plane
+
+            for k in missing:
+                self._tp_partial[:, k] = decode_plane(arr, attrs, k, dtype=np.float64)
+                self._tp_done.add(k)
+        if len(self._tp_done) == arr.shape[1]:  # every plane decoded: the codes are no longer needed
+            self._cont_raw["2p"] = (self._tp_partial, attrs)
+        return self._tp_partial
 
     # ------------------------------------------------------------------ description
     def __repr__(self) -> str:
@@ -218,50 +239,105 @@ class EmissivityTable:
         return out  # (..., T)
 
     def _line_plane(self, k: int) -> np.ndarray:
-        """Decoded line emissivities at table density index ``k``, (n_lines, n_T) float32 (cached)."""
+        """Decoded line emissivities at table density index ``k``, (n_lines, n_T) float32."""
         if self._line_eps_full is not None:
             return self._line_eps_full[:, k, :]
-        if k not in self._line_planes:
-            from .io.table_file import decode_plane
+        return np.take(self._line_values(np.float32), self._line_index(k))
 
-            self._line_planes[k] = decode_plane(self._line_q, self._line_attrs, k)
+    def _line_index(self, k: int) -> np.ndarray:
+        """Stored codes of the line emissivities at table density index ``k`` as indices into
+        :meth:`_line_values`, (n_lines, n_T) uint16 (cached)."""
+        if k not in self._line_planes:
+            from .io.table_file import code_index, plane_codes
+
+            self._line_planes[k] = code_index(plane_codes(self._line_q, self._line_attrs, k))
         return self._line_planes[k]
+
+    def _line_values(self, dtype) -> np.ndarray:
+        """The 65 536 values a stored line-emissivity code stands for (as decoded: float32), as ``dtype``."""
+        key = ("line_values", np.dtype(dtype).str)
+        if key not in self._cache:
+            from .io.table_file import code_values
+
+            self._cache[key] = code_values(self._line_attrs, np.float32).astype(dtype)
+        return self._cache[key]
 
     def line_emissivity(self, log_n: np.ndarray) -> np.ndarray:
         """Line emissivities per unit abundance at n_e(T) = 10**log_n, shape (n_lines, n_T) [erg cm3 s-1].
 
-        Only the table density planes bracketing the requested densities are decoded.
+        Log-log interpolation between the two table densities around n_e at each temperature:
+        ``eps0**(1-w) * eps1**w`` where both are > 0, else the node value (w = 0 or 1) or 0.
+        Only the table density planes needed are decoded.
         """
         key = ("lines", log_n.tobytes())
         if key not in self._cache:
             finite = np.isfinite(log_n)
             i, w = self._density_weights("density", np.where(finite, log_n, self.log_density[0]))
-            planes = {k: self._line_plane(k) for k in np.unique(np.concatenate([i, i + 1]))}
-            t = np.arange(self.logT.size)
-            a0 = np.empty((self.line_wavelength.size, t.size))
-            a1 = np.empty_like(a0)
-            for k, plane in planes.items():
-                for a, m in ((a0, i == k), (a1, i + 1 == k)):
-                    if m.all():  # one density plane for every T (e.g. a constant density): plain copy
-                        a[...] = plane
-                    elif m.any():
-                        a[:, m] = plane[:, t[m]]
-            # geometric interpolation where both neighbours are > 0, evaluated only there (the
-            # powers dominate the cost and most lines are zero over much of the T grid)
-            out = np.where(w == 0, a0, np.where(w == 1, a1, 0.0))
-            r, c = np.nonzero((a0 > 0) & (a1 > 0))
-            wc = w[c]
-            out[r, c] = a0[r, c] ** (1 - wc) * a1[r, c] ** wc
+            out = self._interp_line_values(i, w) if self._line_q is None else self._interp_line_codes(i, w)
             if not finite.all():
                 out[:, ~finite] = np.nan
             self._cache[key] = out
         return self._cache[key]
 
+    def _interp_line_values(self, i: np.ndarray, w: np.ndarray) -> np.ndarray:
+        """:meth:`line_emissivity` of a table decoded in memory: the powers on every pair of values."""
+        planes = {k: self._line_plane(k) for k in np.unique(np.concatenate([i, i + 1]))}
+        t = np.arange(self.logT.size)
+        a0 = np.empty((self.line_wavelength.size, t.size))
+        a1 = np.empty_like(a0)
+        for k, plane in planes.items():
+            for a, m in ((a0, i == k), (a1, i + 1 == k)):
+                if m.all():  # one density plane for every T (e.g. a constant density): plain copy
+                    a[...] = plane
+                elif m.any():
+                    a[:, m] = plane[:, t[m]]
+        # geometric interpolation where both neighbours are > 0, evaluated only there (the
+        # powers dominate the cost and most lines are zero over much of the T grid)
+        out = np.where(w == 0, a0, np.where(w == 1, a1, 0.0))
+        r, c = np.nonzero((a0 > 0) & (a1 > 0))
+        wc = w[c]
+        out[r, c] = a0[r, c] ** (1 - wc) * a1[r, c] ** wc
+        return out
+
+    def _interp_line_codes(self, i: np.ndarray, w: np.ndarray) -> np.ndarray:
+        """:meth:`line_emissivity` of a lazily read table, computed on the stored codes.
+
+        A code stands for one of 65 536 values, so ``eps**(1-w)`` and ``eps**w`` are evaluated once
+        per value and weight (same numpy power on the same float64 numbers as
+        :meth:`_interp_line_values`, hence the same result bit for bit) and looked up per line.
+        Temperatures sharing a density interval and weight (all of them at a constant density) are
+        done together. At a table density (w = 0 or 1) only that plane is decoded when the powers
+        reproduce the values exactly (``x**1 == x``, ``x**0 == 1``; checked on all 65 536 values).
+        """
+        values = self._line_values(np.float64)
+        positive = values > 0
+        out = np.empty((self.line_wavelength.size, self.logT.size))
+        groups: dict = {}
+        for t, k_w in enumerate(zip(i.tolist(), w.tolist())):
+            groups.setdefault(k_w, []).append(t)
+        for (k, wk), cols in groups.items():
+            sel = slice(None) if len(cols) == self.logT.size else np.array(cols)
+            x0 = values ** np.full(values.size, 1 - wk)
+            x1 = values ** np.full(values.size, wk)
+            if wk in (0.0, 1.0):
+                node, other = (x0, x1) if wk == 0.0 else (x1, x0)
+                if np.array_equal(node[positive], values[positive]) and np.all(other[positive] == 1.0):
+                    # a0**1 * a1**0 == a0 for every code: the value at the node, whatever the other plane
+                    out[:, sel] = np.take(values, self._line_index(k + int(wk))[:, sel])
+                    continue
+            c0, c1 = self._line_index(k)[:, sel], self._line_index(k + 1)[:, sel]
+            both = np.take(positive, c0) & np.take(positive, c1)
+            base = np.take(values, c0) if wk == 0.0 else np.take(values, c1) if wk == 1.0 else 0.0
+            out[:, sel] = np.where(both, np.take(x0, c0) * np.take(x1, c1), base)
+        return out
+
     def continuum(self, log_n: np.ndarray) -> np.ndarray:
         """Per-element continuum ff + fb + 2p at n_e(T), shape (n_el, n_T, n_E) [erg cm3 s-1 keV-1]."""
         key = ("cont", log_n.tobytes())
         if key not in self._cache:
-            tp = self._interp_density(np.moveaxis(self._tp, 3, 1), log_n, 2, 3)  # (el, E, T)
+            i, _ = self._density_weights("density", np.where(np.isfinite(log_n), log_n, self.log_density[0]))
+            tp_grid = self._tp_planes(np.concatenate([i, i + 1]))  # only the planes the interpolation reads
+            tp = self._interp_density(np.moveaxis(tp_grid, 3, 1), log_n, 2, 3)  # (el, E, T)
             self._cache[key] = self._ff + self._fb + np.moveaxis(tp, 1, 2)
         return self._cache[key]
 
@@ -282,8 +358,7 @@ def _default_path() -> pathlib.Path:
 
 @functools.lru_cache(maxsize=4)
 def _load_cached(path: str, mtime_ns: int, size: int) -> EmissivityTable:
-    return EmissivityTable(read_table(path, verify=True, lazy=("line_emissivity", "cont_ff", "cont_fb", "cont_2p")),
-                           path)
+    return EmissivityTable(read_table(path, verify=True, lazy=PACKED_VARS), path)
 
 
 def load_emissivity(path=None) -> EmissivityTable:
