@@ -28,7 +28,7 @@ _LAZY = {
 }
 #: Subpackages and modules reachable as attributes (``synthcorona.dimming``) without an explicit import.
 _SUBMODULES = frozenset({
-    "abundances", "absorption", "atomic", "cli", "cluster", "constants", "dem", "dimming", "emissivity", "errors",
+    "abundances", "absorption", "atomic", "catalog", "cli", "cluster", "constants", "dem", "dimming", "emissivity", "errors",
     "instruments", "io", "plotting", "products", "settings", "spectral", "synthesis", "validation",
 })
 

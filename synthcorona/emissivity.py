@@ -17,13 +17,16 @@ import astropy.units as u
 import numpy as np
 
 from . import settings
+from .catalog import DEFAULT_TABLE_NAME, manifest_path, read_manifest, table_repr
 from .errors import InputError, TableFileError
 from .io.table_file import PACKED_VARS, read_table
 from .validation import as_quantity, check_finite
 
-__all__ = ["EmissivityTable", "load_emissivity", "resolve_table", "DEFAULT_TABLE_NAME"]
+__all__ = ["EmissivityTable", "load_emissivity", "resolve_table", "DEFAULT_TABLE_NAME", "REQUIRED_PROVENANCE"]
 
-DEFAULT_TABLE_NAME = "emissivity_default.nc"
+#: Provenance attributes every table must carry (checked by :func:`load_emissivity`).
+REQUIRED_PROVENANCE = ("chianti_version", "fiasco_version", "ioneq", "content_hash")
+
 _GRID_TOL = 1e-9
 
 
@@ -130,10 +133,19 @@ class EmissivityTable:
 
     # ------------------------------------------------------------------ description
     def __repr__(self) -> str:
-        return (f"<EmissivityTable {self.path.name if self.path else '(in memory)'}: "
-                f"{self.line_wavelength.size} lines, {len(self.elements)} elements, "
-                f"logT {self.logT[0]:.2f}-{self.logT[-1]:.2f}, log n_e {self.log_density[0]:g}-"
-                f"{self.log_density[-1]:g}, CHIANTI {self.provenance.get('chianti_version')}>")
+        return table_repr(self.summary())
+
+    def summary(self) -> dict:
+        """What ``synthcorona table-info`` and ``synthcorona list`` show, as plain (JSON-able) values:
+        ``table_file``, ``lines``, ``elements``, ``logT`` and ``log_density`` (the grids), ``energy_kev``
+        (first and last node of the continuum grid), ``n_energy`` and ``provenance`` (every attribute)."""
+        def plain(v):
+            return v.tolist() if isinstance(v, np.ndarray) else v.item() if isinstance(v, np.generic) else v
+
+        return {"table_file": self.path.name if self.path else None, "lines": int(self.line_wavelength.size),
+                "elements": list(self.elements), "logT": self.logT.tolist(), "log_density": self.log_density.tolist(),
+                "energy_kev": [float(self.energy[0]), float(self.energy[-1])], "n_energy": int(self.energy.size),
+                "provenance": {k: plain(v) for k, v in self.provenance.items()}}
 
     @property
     def temperature(self) -> u.Quantity:
@@ -358,7 +370,15 @@ def _default_path() -> pathlib.Path:
 
 @functools.lru_cache(maxsize=4)
 def _load_cached(path: str, mtime_ns: int, size: int) -> EmissivityTable:
-    return EmissivityTable(read_table(path, verify=True, lazy=PACKED_VARS), path)
+    # A table file with a manifest beside it whose SHA-256 of the whole file matches (the embedded table) was
+    # verified when the manifest was written (synthcorona.io.table_file.write_manifest): any changed byte
+    # changes the SHA-256 and brings back the content-hash check, which is ~0.1 s against ~15 ms.
+    manifest = read_manifest(path)
+    ds = read_table(path, verify=manifest is None, lazy=PACKED_VARS)
+    if manifest is not None and ds.attrs.get("content_hash") != manifest.get("content_hash"):
+        raise TableFileError(f"emissivity table {path}: content hash {ds.attrs.get('content_hash')} differs from "
+                             f"{manifest.get('content_hash')} recorded in {manifest_path(path)}")
+    return EmissivityTable(ds, path)
 
 
 def load_emissivity(path=None) -> EmissivityTable:
@@ -388,7 +408,7 @@ def load_emissivity(path=None) -> EmissivityTable:
         raise TableFileError(f"emissivity table {p}: no such file")
     st = p.stat()
     table = _load_cached(str(p.resolve()), st.st_mtime_ns, st.st_size)
-    for key in ("chianti_version", "fiasco_version", "ioneq", "content_hash"):
+    for key in REQUIRED_PROVENANCE:
         if not table.provenance.get(key):
             raise TableFileError(f"emissivity table {p} has no '{key}' provenance attribute")
     return table

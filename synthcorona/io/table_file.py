@@ -272,3 +272,39 @@ def read_table(path, verify: bool = True, lazy: tuple = ()) -> xr.Dataset:
         ds[name] = (a.dims, dec, {k: v for k, v in a.attrs.items() if k not in ("stored_as", "fill", "delta_axes")})
     return ds
 
+
+def table_manifest(path) -> dict:
+    """The manifest of a table file: its size and SHA-256, and what ``synthcorona table-info`` and
+    ``synthcorona list`` show (:meth:`synthcorona.emissivity.EmissivityTable.summary`).
+
+    The table is read with its content hash verified, so a manifest vouches for a table that passed
+    verification; :func:`synthcorona.catalog.read_manifest` uses it only while the file's SHA-256 is
+    unchanged.
+    """
+    from .. import catalog
+    from ..emissivity import REQUIRED_PROVENANCE, EmissivityTable
+
+    path = pathlib.Path(path)
+    table = EmissivityTable(read_table(path, verify=True, lazy=PACKED_VARS), path)
+    missing = [k for k in REQUIRED_PROVENANCE if not table.provenance.get(k)]
+    if missing:
+        raise TableFileError(f"emissivity table {path} has no {missing} provenance attributes")
+    return {"format": catalog.MANIFEST_FORMAT,
+            "about": f"Summary of {path.name} for 'synthcorona list' and 'synthcorona table-info' without reading "
+                     "the table; written by synthcorona.io.table_file.write_manifest and valid only for the file "
+                     "with this size and SHA-256.",
+            "file_size": path.stat().st_size, "file_sha256": catalog.file_sha256(path),
+            "content_hash": table.provenance["content_hash"], **table.summary()}
+
+
+def write_manifest(path) -> pathlib.Path:
+    """Write :func:`table_manifest` of a table file beside it (same name, ``.json``); returns the path written.
+
+    Run after a table changes (``python -c "from synthcorona.io.table_file import write_manifest;
+    write_manifest('synthcorona/data/emissivity_default.nc')"`` for the embedded one).
+    """
+    from ..catalog import manifest_path
+
+    out = manifest_path(path)
+    out.write_text(json.dumps(table_manifest(path), indent=1, ensure_ascii=False) + "\n", encoding="utf-8")
+    return out
