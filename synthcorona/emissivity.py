@@ -318,8 +318,10 @@ class EmissivityTable:
         per value and weight (same numpy power on the same float64 numbers as
         :meth:`_interp_line_values`, hence the same result bit for bit) and looked up per line.
         Temperatures sharing a density interval and weight (all of them at a constant density) are
-        done together. At a table density (w = 0 or 1) only that plane is decoded when the powers
-        reproduce the values exactly (``x**1 == x``, ``x**0 == 1``; checked on all 65 536 values).
+        done together. Between table densities the powers of zero values are set to zero, so a plain
+        product gives the 0 of a line that is zero in either plane; at a table density (w = 0 or 1)
+        only that plane is decoded when the powers reproduce the values exactly (``x**1 == x``,
+        ``x**0 == 1``; checked on all 65 536 values).
         """
         values = self._line_values(np.float64)
         positive = values > 0
@@ -328,18 +330,29 @@ class EmissivityTable:
         for t, k_w in enumerate(zip(i.tolist(), w.tolist())):
             groups.setdefault(k_w, []).append(t)
         for (k, wk), cols in groups.items():
-            sel = slice(None) if len(cols) == self.logT.size else np.array(cols)
+            every = len(cols) == self.logT.size  # all temperatures (a constant density): write in place
+            sel = slice(None) if every else np.array(cols)
             x0 = values ** np.full(values.size, 1 - wk)
             x1 = values ** np.full(values.size, wk)
             if wk in (0.0, 1.0):
                 node, other = (x0, x1) if wk == 0.0 else (x1, x0)
                 if np.array_equal(node[positive], values[positive]) and np.all(other[positive] == 1.0):
                     # a0**1 * a1**0 == a0 for every code: the value at the node, whatever the other plane
-                    out[:, sel] = np.take(values, self._line_index(k + int(wk))[:, sel])
+                    c = self._line_index(k + int(wk))
+                    if every:
+                        np.take(values, c, out=out)
+                    else:
+                        out[:, sel] = np.take(values, c[:, sel])
                     continue
             c0, c1 = self._line_index(k)[:, sel], self._line_index(k + 1)[:, sel]
+            if 0.0 < wk < 1.0:  # where either value is 0 the result is 0: zero the powers there instead
+                p0 = np.take(np.where(positive, x0, 0.0), c0, out=out if every else None)
+                p0 *= np.take(np.where(positive, x1, 0.0), c1)
+                if not every:
+                    out[:, sel] = p0
+                continue
             both = np.take(positive, c0) & np.take(positive, c1)
-            base = np.take(values, c0) if wk == 0.0 else np.take(values, c1) if wk == 1.0 else 0.0
+            base = np.take(values, c0) if wk == 0.0 else np.take(values, c1)
             out[:, sel] = np.where(both, np.take(x0, c0) * np.take(x1, c1), base)
         return out
 
