@@ -28,9 +28,9 @@ _LAZY = {
 }
 #: Subpackages and modules reachable as attributes (``synthcorona.dimming``) without an explicit import.
 _SUBMODULES = frozenset({
-    "abundances", "absorption", "atomic", "batch", "cli", "cluster", "constants", "dem", "dimming", "emissivity",
-    "errors", "instruments", "io", "memory", "plotting", "products", "settings", "spectral", "synthesis",
-    "validation",
+    "abundances", "absorption", "atomic", "batch", "catalog", "cli", "cluster", "constants", "dem", "dimming",
+    "emissivity", "errors", "instruments", "io", "memory", "plotting", "products", "settings", "spectral",
+    "synthesis", "validation",
 })
 
 __all__ = [

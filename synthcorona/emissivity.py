@@ -17,13 +17,16 @@ import astropy.units as u
 import numpy as np
 
 from . import settings
+from .catalog import DEFAULT_TABLE_NAME, manifest_path, read_manifest, table_repr
 from .errors import InputError, TableFileError
-from .io.table_file import read_table
+from .io.table_file import PACKED_VARS, read_table
 from .validation import as_quantity, check_finite
 
-__all__ = ["EmissivityTable", "load_emissivity", "resolve_table", "DEFAULT_TABLE_NAME"]
+__all__ = ["EmissivityTable", "load_emissivity", "resolve_table", "DEFAULT_TABLE_NAME", "REQUIRED_PROVENANCE"]
 
-DEFAULT_TABLE_NAME = "emissivity_default.nc"
+#: Provenance attributes every table must carry (checked by :func:`load_emissivity`).
+REQUIRED_PROVENANCE = ("chianti_version", "fiasco_version", "ioneq", "content_hash")
+
 _GRID_TOL = 1e-9
 
 
@@ -69,6 +72,8 @@ class EmissivityTable:
             self._line_q = None
             self._line_eps_full = np.asarray(le.values)  # (line, n, T)
         self._line_planes: dict = {}
+        self._tp_partial = None  # two-photon continuum, decoded plane by plane (_tp_planes)
+        self._tp_done: set = set()
         # continua (el, T, E) and two-photon (el, n, T, E): decoded on first use when read lazily
         self._cont_raw = {k: (np.asarray(ds[v].values), dict(ds[v].attrs))
                           for k, v in (("ff", "cont_ff"), ("fb", "cont_fb"), ("2p", "cont_2p"))}
@@ -105,14 +110,42 @@ class EmissivityTable:
 
     @property
     def _tp(self) -> np.ndarray:
-        return self._cont("2p")
+        return self._tp_planes(range(self.log_density.size))
+
+    def _tp_planes(self, planes) -> np.ndarray:
+        """Two-photon continuum (el, n, T, E) with at least the density ``planes`` decoded (the others
+        may still be zero: a request decodes only the planes around its densities)."""
+        arr, attrs = self._cont_raw["2p"]
+        if not np.issubdtype(arr.dtype, np.integer):
+            return arr
+        if self._tp_partial is None:
+            self._tp_partial = np.zeros(arr.shape)
+        missing = sorted({int(k) for k in planes} - self._tp_done)
+        if missing:
+            from .io.table_file import decode_plane
+
+            for k in missing:
+                self._tp_partial[:, k] = decode_plane(arr, attrs, k, dtype=np.float64)
+                self._tp_done.add(k)
+        if len(self._tp_done) == arr.shape[1]:  # every plane decoded: the codes are no longer needed
+            self._cont_raw["2p"] = (self._tp_partial, attrs)
+        return self._tp_partial
 
     # ------------------------------------------------------------------ description
     def __repr__(self) -> str:
-        return (f"<EmissivityTable {self.path.name if self.path else '(in memory)'}: "
-                f"{self.line_wavelength.size} lines, {len(self.elements)} elements, "
-                f"logT {self.logT[0]:.2f}-{self.logT[-1]:.2f}, log n_e {self.log_density[0]:g}-"
-                f"{self.log_density[-1]:g}, CHIANTI {self.provenance.get('chianti_version')}>")
+        return table_repr(self.summary())
+
+    def summary(self) -> dict:
+        """What ``synthcorona table-info`` and ``synthcorona list`` show, as plain (JSON-able) values:
+        ``table_file``, ``lines``, ``elements``, ``logT`` and ``log_density`` (the grids), ``energy_kev``
+        (first and last node of the continuum grid), ``n_energy`` and ``provenance`` (every attribute)."""
+        def plain(v):
+            return v.tolist() if isinstance(v, np.ndarray) else v.item() if isinstance(v, np.generic) else v
+
+        return {"table_file": self.path.name if self.path else None, "lines": int(self.line_wavelength.size),
+                "elements": list(self.elements), "logT": self.logT.tolist(), "log_density": self.log_density.tolist(),
+                "energy_kev": [float(self.energy[0]), float(self.energy[-1])], "n_energy": int(self.energy.size),
+                "provenance": {k: plain(v) for k, v in self.provenance.items()}}
 
     @property
     def temperature(self) -> u.Quantity:
@@ -218,50 +251,118 @@ class EmissivityTable:
         return out  # (..., T)
 
     def _line_plane(self, k: int) -> np.ndarray:
-        """Decoded line emissivities at table density index ``k``, (n_lines, n_T) float32 (cached)."""
+        """Decoded line emissivities at table density index ``k``, (n_lines, n_T) float32."""
         if self._line_eps_full is not None:
             return self._line_eps_full[:, k, :]
-        if k not in self._line_planes:
-            from .io.table_file import decode_plane
+        return np.take(self._line_values(np.float32), self._line_index(k))
 
-            self._line_planes[k] = decode_plane(self._line_q, self._line_attrs, k)
+    def _line_index(self, k: int) -> np.ndarray:
+        """Stored codes of the line emissivities at table density index ``k`` as indices into
+        :meth:`_line_values`, (n_lines, n_T) uint16 (cached)."""
+        if k not in self._line_planes:
+            from .io.table_file import code_index, plane_codes
+
+            self._line_planes[k] = code_index(plane_codes(self._line_q, self._line_attrs, k))
         return self._line_planes[k]
+
+    def _line_values(self, dtype) -> np.ndarray:
+        """The 65 536 values a stored line-emissivity code stands for (as decoded: float32), as ``dtype``."""
+        key = ("line_values", np.dtype(dtype).str)
+        if key not in self._cache:
+            from .io.table_file import code_values
+
+            self._cache[key] = code_values(self._line_attrs, np.float32).astype(dtype)
+        return self._cache[key]
 
     def line_emissivity(self, log_n: np.ndarray) -> np.ndarray:
         """Line emissivities per unit abundance at n_e(T) = 10**log_n, shape (n_lines, n_T) [erg cm3 s-1].
 
-        Only the table density planes bracketing the requested densities are decoded.
+        Log-log interpolation between the two table densities around n_e at each temperature:
+        ``eps0**(1-w) * eps1**w`` where both are > 0, else the node value (w = 0 or 1) or 0.
+        Only the table density planes needed are decoded.
         """
         key = ("lines", log_n.tobytes())
         if key not in self._cache:
             finite = np.isfinite(log_n)
             i, w = self._density_weights("density", np.where(finite, log_n, self.log_density[0]))
-            planes = {k: self._line_plane(k) for k in np.unique(np.concatenate([i, i + 1]))}
-            t = np.arange(self.logT.size)
-            a0 = np.empty((self.line_wavelength.size, t.size))
-            a1 = np.empty_like(a0)
-            for k, plane in planes.items():
-                for a, m in ((a0, i == k), (a1, i + 1 == k)):
-                    if m.all():  # one density plane for every T (e.g. a constant density): plain copy
-                        a[...] = plane
-                    elif m.any():
-                        a[:, m] = plane[:, t[m]]
-            # geometric interpolation where both neighbours are > 0, evaluated only there (the
-            # powers dominate the cost and most lines are zero over much of the T grid)
-            out = np.where(w == 0, a0, np.where(w == 1, a1, 0.0))
-            r, c = np.nonzero((a0 > 0) & (a1 > 0))
-            wc = w[c]
-            out[r, c] = a0[r, c] ** (1 - wc) * a1[r, c] ** wc
+            out = self._interp_line_values(i, w) if self._line_q is None else self._interp_line_codes(i, w)
             if not finite.all():
                 out[:, ~finite] = np.nan
             self._cache[key] = out
         return self._cache[key]
 
+    def _interp_line_values(self, i: np.ndarray, w: np.ndarray) -> np.ndarray:
+        """:meth:`line_emissivity` of a table decoded in memory: the powers on every pair of values."""
+        planes = {k: self._line_plane(k) for k in np.unique(np.concatenate([i, i + 1]))}
+        t = np.arange(self.logT.size)
+        a0 = np.empty((self.line_wavelength.size, t.size))
+        a1 = np.empty_like(a0)
+        for k, plane in planes.items():
+            for a, m in ((a0, i == k), (a1, i + 1 == k)):
+                if m.all():  # one density plane for every T (e.g. a constant density): plain copy
+                    a[...] = plane
+                elif m.any():
+                    a[:, m] = plane[:, t[m]]
+        # geometric interpolation where both neighbours are > 0, evaluated only there (the
+        # powers dominate the cost and most lines are zero over much of the T grid)
+        out = np.where(w == 0, a0, np.where(w == 1, a1, 0.0))
+        r, c = np.nonzero((a0 > 0) & (a1 > 0))
+        wc = w[c]
+        out[r, c] = a0[r, c] ** (1 - wc) * a1[r, c] ** wc
+        return out
+
+    def _interp_line_codes(self, i: np.ndarray, w: np.ndarray) -> np.ndarray:
+        """:meth:`line_emissivity` of a lazily read table, computed on the stored codes.
+
+        A code stands for one of 65 536 values, so ``eps**(1-w)`` and ``eps**w`` are evaluated once
+        per value and weight (same numpy power on the same float64 numbers as
+        :meth:`_interp_line_values`, hence the same result bit for bit) and looked up per line.
+        Temperatures sharing a density interval and weight (all of them at a constant density) are
+        done together. Between table densities the powers of zero values are set to zero, so a plain
+        product gives the 0 of a line that is zero in either plane; at a table density (w = 0 or 1)
+        only that plane is decoded when the powers reproduce the values exactly (``x**1 == x``,
+        ``x**0 == 1``; checked on all 65 536 values).
+        """
+        values = self._line_values(np.float64)
+        positive = values > 0
+        out = np.empty((self.line_wavelength.size, self.logT.size))
+        groups: dict = {}
+        for t, k_w in enumerate(zip(i.tolist(), w.tolist())):
+            groups.setdefault(k_w, []).append(t)
+        for (k, wk), cols in groups.items():
+            every = len(cols) == self.logT.size  # all temperatures (a constant density): write in place
+            sel = slice(None) if every else np.array(cols)
+            x0 = values ** np.full(values.size, 1 - wk)
+            x1 = values ** np.full(values.size, wk)
+            if wk in (0.0, 1.0):
+                node, other = (x0, x1) if wk == 0.0 else (x1, x0)
+                if np.array_equal(node[positive], values[positive]) and np.all(other[positive] == 1.0):
+                    # a0**1 * a1**0 == a0 for every code: the value at the node, whatever the other plane
+                    c = self._line_index(k + int(wk))
+                    if every:
+                        np.take(values, c, out=out)
+                    else:
+                        out[:, sel] = np.take(values, c[:, sel])
+                    continue
+            c0, c1 = self._line_index(k)[:, sel], self._line_index(k + 1)[:, sel]
+            if 0.0 < wk < 1.0:  # where either value is 0 the result is 0: zero the powers there instead
+                p0 = np.take(np.where(positive, x0, 0.0), c0, out=out if every else None)
+                p0 *= np.take(np.where(positive, x1, 0.0), c1)
+                if not every:
+                    out[:, sel] = p0
+                continue
+            both = np.take(positive, c0) & np.take(positive, c1)
+            base = np.take(values, c0) if wk == 0.0 else np.take(values, c1)
+            out[:, sel] = np.where(both, np.take(x0, c0) * np.take(x1, c1), base)
+        return out
+
     def continuum(self, log_n: np.ndarray) -> np.ndarray:
         """Per-element continuum ff + fb + 2p at n_e(T), shape (n_el, n_T, n_E) [erg cm3 s-1 keV-1]."""
         key = ("cont", log_n.tobytes())
         if key not in self._cache:
-            tp = self._interp_density(np.moveaxis(self._tp, 3, 1), log_n, 2, 3)  # (el, E, T)
+            i, _ = self._density_weights("density", np.where(np.isfinite(log_n), log_n, self.log_density[0]))
+            tp_grid = self._tp_planes(np.concatenate([i, i + 1]))  # only the planes the interpolation reads
+            tp = self._interp_density(np.moveaxis(tp_grid, 3, 1), log_n, 2, 3)  # (el, E, T)
             self._cache[key] = self._ff + self._fb + np.moveaxis(tp, 1, 2)
         return self._cache[key]
 
@@ -282,8 +383,15 @@ def _default_path() -> pathlib.Path:
 
 @functools.lru_cache(maxsize=4)
 def _load_cached(path: str, mtime_ns: int, size: int) -> EmissivityTable:
-    return EmissivityTable(read_table(path, verify=True, lazy=("line_emissivity", "cont_ff", "cont_fb", "cont_2p")),
-                           path)
+    # A table file with a manifest beside it whose SHA-256 of the whole file matches (the embedded table) was
+    # verified when the manifest was written (synthcorona.io.table_file.write_manifest): any changed byte
+    # changes the SHA-256 and brings back the content-hash check, which is ~0.1 s against ~15 ms.
+    manifest = read_manifest(path)
+    ds = read_table(path, verify=manifest is None, lazy=PACKED_VARS)
+    if manifest is not None and ds.attrs.get("content_hash") != manifest.get("content_hash"):
+        raise TableFileError(f"emissivity table {path}: content hash {ds.attrs.get('content_hash')} differs from "
+                             f"{manifest.get('content_hash')} recorded in {manifest_path(path)}")
+    return EmissivityTable(ds, path)
 
 
 def load_emissivity(path=None) -> EmissivityTable:
@@ -313,7 +421,7 @@ def load_emissivity(path=None) -> EmissivityTable:
         raise TableFileError(f"emissivity table {p}: no such file")
     st = p.stat()
     table = _load_cached(str(p.resolve()), st.st_mtime_ns, st.st_size)
-    for key in ("chianti_version", "fiasco_version", "ioneq", "content_hash"):
+    for key in REQUIRED_PROVENANCE:
         if not table.provenance.get(key):
             raise TableFileError(f"emissivity table {p} has no '{key}' provenance attribute")
     return table

@@ -28,46 +28,44 @@ def add_arguments(p) -> None:
 
 
 def _instruments(with_bands: bool) -> list[str]:
-    from ..instruments.designs import list_generic, load_generic
+    from ..catalog import GENERIC_INSTRUMENTS
 
     lines = ["Generic instruments (designs of synthcorona, not any real mission's calibration):"]
-    for name, desc in list_generic().items():
-        lines.append(f"  {name}: {desc}")
+    for name, ins in GENERIC_INSTRUMENTS.items():
+        lines.append(f"  {name}: {ins['description']}")
         if with_bands:
-            ins = load_generic(name)
-            lo, hi = ins.energy_range.to_value("keV")
-            if ins.bands:
-                for b, q in ins.bands.items():
-                    lines.append(f"      band {name}:{b}  {q[0].to_value('keV'):g}-{q[1].to_value('keV'):g} keV "
-                                 f"({ins.band_axis})")
+            if ins["bands_kev"]:
+                for b, (lo, hi) in ins["bands_kev"].items():
+                    lines.append(f"      band {name}:{b}  {lo:g}-{hi:g} keV ({ins['band_axis']})")
             else:
+                lo, hi = ins["energy_range_kev"]
                 lines.append(f"      band {name} (\"total\", whole response)  {lo:g}-{hi:g} keV")
     return lines
 
 
 def _abundances() -> list[str]:
-    from ..abundances import available_sets
+    from ..catalog import abundance_sets
 
-    return ["Abundance sets:"] + [f"  {k}: {v}" for k, v in available_sets().items()]
+    return ["Abundance sets:"] + [f"  {k}: {v}" for k, v in abundance_sets().items()]
 
 
 def _dems() -> list[str]:
-    from ..io.toml import DEM_MODELS
+    from ..catalog import DEM_MODELS
 
     return ["DEM models (model = \"...\" in a [...dem] table; keys it reads):"] + \
         [f"  {k}: {v}" for k, v in DEM_MODELS.items()]
 
 
 def _table() -> list[str]:
-    from ..emissivity import load_emissivity
+    from ..catalog import table_repr, table_summary
 
-    t = load_emissivity()
-    lines = ["Embedded emissivity table:", f"  {t!r}"]
+    s = table_summary()
+    lines = ["Embedded emissivity table:", f"  {table_repr(s)}"]
     for k in ("chianti_version", "chianti_provenance", "fiasco_version", "ioneq", "content_hash"):
-        if k in t.provenance:
-            lines.append(f"  {k}: {t.provenance[k]}")
-    lines.append(f"  elements: {', '.join(t.elements)}")
-    lines.append(f"  continuum: {t.energy[0]:.4g}-{t.energy[-1]:.4g} keV")
+        if k in s["provenance"]:
+            lines.append(f"  {k}: {s['provenance'][k]}")
+    lines.append(f"  elements: {', '.join(s['elements'])}")
+    lines.append(f"  continuum: {s['energy_kev'][0]:.4g}-{s['energy_kev'][-1]:.4g} keV")
     return lines
 
 

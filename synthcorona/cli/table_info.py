@@ -16,14 +16,13 @@ def add_arguments(p) -> None:
 
 
 def run(args) -> int:
-    from ..emissivity import load_emissivity
+    from ..catalog import table_repr, table_summary
 
-    t = load_emissivity(args.table)
-    print(repr(t))
+    s = table_summary(args.table)
+    print(table_repr(s))
     for k in ("chianti_version", "chianti_provenance", "chianti_substituted_ions", "fiasco_version", "ioneq",
               "elements", "line_threshold",
               "lines_kept", "two_ion_model", "build_date", "content_hash", "storage_error"):
-        if k in t.provenance:
-            print(f"{k}: {t.provenance[k]}")
+        if k in s["provenance"]:
+            print(f"{k}: {s['provenance'][k]}")
     return 0
-

@@ -86,14 +86,34 @@ def _delta_decode(d: np.ndarray, axes: tuple[int, ...]) -> np.ndarray:
     return q
 
 
-def _unpack(ints: np.ndarray, scale: float, offset: float, dtype=np.float64) -> np.ndarray:
-    """Inverse of :func:`_pack` (fill value → 0), through a 65 536-entry look-up table."""
+def _value_table(scale: float, offset: float, dtype=np.float64) -> np.ndarray:
+    """The 65 536 values of the int16 codes, indexed by :func:`code_index` (the fill code -> 0)."""
     lut = 10.0 ** (np.arange(-32768, 32768, dtype=np.float64) * scale + offset)
     lut[0] = 0.0  # FILL = -32768 maps to index 0
-    lut = lut.astype(dtype)
-    # int16 code c -> table index c + 32768, computed as the uint16 view with the sign bit flipped (no temporaries)
-    idx = np.ascontiguousarray(ints, dtype=np.int16).view(np.uint16) ^ np.uint16(0x8000)
-    return np.take(lut, idx)
+    return lut.astype(dtype)
+
+
+def code_index(codes: np.ndarray) -> np.ndarray:
+    """Index of int16 codes into :func:`code_values`: code + 32768 as uint16.
+
+    Computed as the uint16 view with the sign bit flipped (no temporaries).
+    """
+    return np.ascontiguousarray(codes, dtype=np.int16).view(np.uint16) ^ np.uint16(0x8000)
+
+
+def code_values(attrs: dict, dtype=np.float64) -> np.ndarray:
+    """The value every int16 code of a packed variable stands for: a 65 536-entry table indexed by
+    :func:`code_index`, ``10**(code * pack_scale + pack_offset)`` (the fill code -> 0) cast to ``dtype``.
+
+    ``code_values(attrs, dtype)[code_index(codes)]`` equals what :func:`decode_full` and
+    :func:`decode_plane` return for those codes, bit for bit.
+    """
+    return _value_table(float(attrs["pack_scale"]), float(attrs["pack_offset"]), dtype=dtype)
+
+
+def _unpack(ints: np.ndarray, scale: float, offset: float, dtype=np.float64) -> np.ndarray:
+    """Inverse of :func:`_pack` (fill value → 0), through a 65 536-entry look-up table."""
+    return np.take(_value_table(scale, offset, dtype), code_index(ints))
 
 
 def decode_full(stored: np.ndarray, attrs: dict, dtype=np.float64) -> np.ndarray:
@@ -103,21 +123,31 @@ def decode_full(stored: np.ndarray, attrs: dict, dtype=np.float64) -> np.ndarray
     return _unpack(codes, float(attrs["pack_scale"]), float(attrs["pack_offset"]), dtype=dtype)
 
 
-def decode_plane(stored: np.ndarray, attrs: dict, k: int, dtype=np.float32) -> np.ndarray:
-    """Values of plane ``k`` along axis 1 of a lazily read 3-D packed array (``read_table(..., lazy=...)``).
+def plane_codes(stored: np.ndarray, attrs: dict, k: int) -> np.ndarray:
+    """The int16 codes (delta decoding undone) of plane ``k`` along axis 1 of a lazily read packed array.
 
-    For the layout written here (delta axes "2 1": differences along axis 2, then axis 1),
-    plane k of the codes is the wrap-around sum of the first k+1 stored planes, cumulated
-    along axis 2; other layouts are decoded whole.
+    For the layouts written here (differences along every axis but the first, e.g. delta axes
+    "2 1"), plane k of the codes is the wrap-around sum of the first k+1 stored planes, cumulated
+    along the other delta axes (16-bit wrap-around sums are exact in any order); other layouts
+    are decoded whole.
     """
     axes = tuple(int(x) for x in str(attrs.get("delta_axes", "")).split())
-    if axes == (2, 1):
-        codes = np.cumsum(np.sum(stored[:, : k + 1, :], axis=1, dtype=np.int16), axis=1, dtype=np.int16)
-    elif not axes:
-        codes = np.ascontiguousarray(stored[:, k, :])
-    else:
-        codes = np.ascontiguousarray(_delta_decode(stored, axes)[:, k, :])
-    return _unpack(codes, float(attrs["pack_scale"]), float(attrs["pack_offset"]), dtype=dtype)
+    if 1 in axes:
+        codes = np.sum(stored[:, : k + 1], axis=1, dtype=np.int16)
+        for ax in sorted(a - 1 for a in axes if a > 1):  # axis a of the array is axis a - 1 of a plane
+            codes = np.cumsum(codes, axis=ax, dtype=np.int16)
+        return codes
+    if not axes:
+        return np.ascontiguousarray(stored[:, k])
+    return np.ascontiguousarray(_delta_decode(stored, axes)[:, k])
+
+
+def decode_plane(stored: np.ndarray, attrs: dict, k: int, dtype=np.float32) -> np.ndarray:
+    """Values of plane ``k`` along axis 1 of a lazily read packed array (``read_table(..., lazy=...)``):
+    the codes of :func:`plane_codes` through :func:`code_values`; equal, bit for bit, to that plane of
+    :func:`decode_full` with the same ``dtype``."""
+    return _unpack(plane_codes(stored, attrs, k), float(attrs["pack_scale"]), float(attrs["pack_offset"]),
+                   dtype=dtype)
 
 
 def content_hash(ds: xr.Dataset) -> str:
@@ -361,3 +391,40 @@ def read_table(path, verify: bool = True, lazy: tuple = ()) -> xr.Dataset:
                       dtype=np.float32 if name == "line_emissivity" else np.float64)
         ds[name] = (a.dims, dec, {k: v for k, v in a.attrs.items() if k not in ("stored_as", "fill", "delta_axes")})
     return ds
+
+
+def table_manifest(path) -> dict:
+    """The manifest of a table file: its size and SHA-256, and what ``synthcorona table-info`` and
+    ``synthcorona list`` show (:meth:`synthcorona.emissivity.EmissivityTable.summary`).
+
+    The table is read with its content hash verified, so a manifest vouches for a table that passed
+    verification; :func:`synthcorona.catalog.read_manifest` uses it only while the file's SHA-256 is
+    unchanged.
+    """
+    from .. import catalog
+    from ..emissivity import REQUIRED_PROVENANCE, EmissivityTable
+
+    path = pathlib.Path(path)
+    table = EmissivityTable(read_table(path, verify=True, lazy=PACKED_VARS), path)
+    missing = [k for k in REQUIRED_PROVENANCE if not table.provenance.get(k)]
+    if missing:
+        raise TableFileError(f"emissivity table {path} has no {missing} provenance attributes")
+    return {"format": catalog.MANIFEST_FORMAT,
+            "about": f"Summary of {path.name} for 'synthcorona list' and 'synthcorona table-info' without reading "
+                     "the table; written by synthcorona.io.table_file.write_manifest and valid only for the file "
+                     "with this size and SHA-256.",
+            "file_size": path.stat().st_size, "file_sha256": catalog.file_sha256(path),
+            "content_hash": table.provenance["content_hash"], **table.summary()}
+
+
+def write_manifest(path) -> pathlib.Path:
+    """Write :func:`table_manifest` of a table file beside it (same name, ``.json``); returns the path written.
+
+    Run after a table changes (``python -c "from synthcorona.io.table_file import write_manifest;
+    write_manifest('synthcorona/data/emissivity_default.nc')"`` for the embedded one).
+    """
+    from ..catalog import manifest_path
+
+    out = manifest_path(path)
+    out.write_text(json.dumps(table_manifest(path), indent=1, ensure_ascii=False) + "\n", encoding="utf-8")
+    return out
