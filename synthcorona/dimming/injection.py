@@ -17,6 +17,7 @@ import numpy as np
 from scipy import stats
 
 from ..errors import InputError
+from .likelihood_fit import fit_likelihood_ratio
 from .noise import (
     CountSampler,
     RedNoise,
@@ -35,7 +36,7 @@ from .scan import (
     check_recovery_factors,
     trial_grid,
 )
-from .statistics import fit_likelihood_ratio, likelihood_templates, window_sigma, window_test_size
+from .statistics import likelihood_templates, window_sigma, window_test_size
 from .thresholds import Threshold, calibration_error, check_false_alarm, collect_statistic, threshold_from_null
 
 __all__ = ["STATISTICS", "ONSET_MODES", "Case", "DetectionSetup", "threshold_is_exact", "digest"]

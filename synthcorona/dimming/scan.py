@@ -41,7 +41,7 @@ The dimming template D (decrement per unit depth) is moved and stretched to ever
 integral of D (beyond the light curve D keeps its first / last bin's value). For every trial the
 score statistic of the depth at the null fit (Rao's efficient score over its standard deviation,
 with the normalisation profiled) is a matrix product; the trial with the largest score is then
-fitted in full (:func:`~synthcorona.dimming.statistics.fit_likelihood_ratio`) and its TS is the
+fitted in full (:func:`~synthcorona.dimming.likelihood_fit.fit_likelihood_ratio_rows`) and its TS is the
 statistic. A realisation whose largest score is <= 0 has TS = 0 at every trial (the profile
 likelihood is concave in the depth, so a non-positive slope at zero depth means its maximum over
 depth >= 0 is at zero).
@@ -170,9 +170,11 @@ class WindowScan:
     null_counts : array (n_bins,)
         Expected counts per bin without the event (background included): the null shares q0.
 
-    Attributes ``groups`` (segment label per bin, -1 outside every window: the ``groups`` of a
-    :class:`~synthcorona.dimming.noise.CountSampler`), ``q`` (null post-window share per trial) and
-    ``grid`` (the trials with at least one bin in each window).
+    Notes
+    -----
+    ``groups``: segment label per bin, -1 outside every window (the ``groups`` of a
+    :class:`~synthcorona.dimming.noise.CountSampler`); ``q``: null post-window share per trial;
+    ``grid``: the trials with at least one bin in each window.
     """
 
     def __init__(self, edges, centres, windows, grid: TrialGrid, null_counts):

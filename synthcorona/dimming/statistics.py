@@ -52,14 +52,14 @@ from scipy import special, stats
 
 from ..errors import InputError
 from ..validation import check_finite, check_range
-from .likelihood_fit import LR_BLOCK, LikelihoodRatio, fit_likelihood_ratio
+from .likelihood_fit import LikelihoodRatio, fit_likelihood_ratio
 from .noise import check_count, rate_values, time_values
 
 __all__ = [
-    "WindowTest", "LikelihoodRatio", "WINDOW_NORMAL_LIMIT", "LR_BLOCK",
+    "WindowTest", "WINDOW_NORMAL_LIMIT",
     "count_values", "window_sigma", "window_root", "window_test_size", "window_test", "step_snr",
     "poisson_loglike", "cash_statistic",
-    "likelihood_templates", "likelihood_ratio", "fit_likelihood_ratio",
+    "likelihood_templates", "likelihood_ratio",
 ]
 
 
