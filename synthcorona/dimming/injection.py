@@ -207,7 +207,10 @@ class DetectionSetup:
             def fn(chunk):
                 return window_sigma(chunk[:, 0], chunk[:, 1], q0)[1]
 
-            return Case(fn, self.labels, key, window_test_size(mu_pre, mu_post, self.alpha), 1)
+            size = self.cache.get(key)
+            if size is None:                        # the exact size depends only on the null: once per null
+                size = self.cache[key] = window_test_size(mu_pre, mu_post, self.alpha)
+            return Case(fn, self.labels, key, size, 1)
 
         def fn(chunk):
             return window_sigma(chunk[:, 0], chunk[:, 1], q0)[0]
