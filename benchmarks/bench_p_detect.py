@@ -1,4 +1,4 @@
-"""Detection probability by injection and recovery: 10,000 + 10,000 realisations of 1000 bins."""
+"""Detection probability by injection and recovery: 10,000 + 10,000 realisations of 1000 bins, onset known."""
 import numpy as np
 from common import best_of, dimming_api, toy_light_curves
 
@@ -13,7 +13,8 @@ def _p_detect(quick, statistic, red_noise=None, repeat=3):
     w, wo = toy_light_curves()
     cts = u.ct / u.s
     kw = dict(statistic=statistic, windows=tuple((a * u.s, b * u.s) for a, b in WINDOWS) if statistic == "window"
-              else None, red_noise=None if red_noise is None else (red_noise[0], red_noise[1] * u.s))
+              else None, red_noise=None if red_noise is None else (red_noise[0], red_noise[1] * u.s),
+              onset="known")  # the onset scan has its own rows (bench_onset_scan.py)
     n = 1000 if quick else 10_000
     detection_probability(w * cts, wo * cts, 1 * u.s, n_realisations=1000, seed=0, **kw)  # warm-up
     t, c, ds = best_of(lambda: detection_probability(w * cts, wo * cts, 1 * u.s, n_realisations=n, seed=1, **kw),

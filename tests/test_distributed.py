@@ -244,10 +244,13 @@ def test_detection_grid_on_cluster_identical_to_in_process(star, client):
     for chunk_size in (1, 4, None):           # 6 outer points: one per task, uneven chunks, default
         got = detection_grid(star, scheduler=client, chunk_size=chunk_size, **kw)
         xr.testing.assert_identical(ref, got)
-    # the grid is not trivially flat: P(detect) spans a range and is monotone in mass (common random numbers)
+    # the grid is not trivially flat: P(detect) spans a range and grows with mass. With the onset scanned (the
+    # default) common random numbers keep it monotone only up to Monte Carlo error (a deeper dimming also lowers
+    # trials whose baseline it overlaps; synthcorona.dimming.detection): within 2 binomial standard errors.
     p = ref.probability.values
     assert p.min() < 0.2 and p.max() > 0.8
-    assert np.all(np.diff(p, axis=2) >= 0)
+    se = np.sqrt(np.maximum(p, 1e-3) * (1 - p) / 1000)
+    assert np.all(np.diff(p, axis=2) >= -2 * se[:, :, 1:])
 
 
 def test_min_mass_grid_on_cluster_identical_to_in_process(star, client):

@@ -16,6 +16,7 @@ from .mass_removal import (
 from .noise import chunk_size_for, iter_realisations, poisson_counts
 from .profile import cooling_time, dimming_profile, onset_time, recovery_time, refill_time, sound_speed
 from .scenario import CME, Corona, DimmingScenario, Flare, Observation, Star
+from .sizes import realisations_for_precision
 from .statistics import likelihood_ratio, window_test
 from .timeseries import lightcurve_from_em_series
 
@@ -25,5 +26,5 @@ __all__ = [
     "CME", "Corona", "DimmingScenario", "Flare", "Observation", "Star", "DimmingLightCurveModel",
     "lightcurve_from_em_series", "detection_grid",
     "detection_probability", "minimum_detectable", "likelihood_ratio", "window_test", "chunk_size_for",
-    "iter_realisations", "poisson_counts",
+    "iter_realisations", "poisson_counts", "realisations_for_precision",
 ]

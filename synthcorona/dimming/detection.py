@@ -1,27 +1,44 @@
 r"""Detection probability and minimum detectable event by injection and recovery.
 
-:func:`detection_probability` simulates the light curve *without* the event to calibrate the
-detection threshold of a test statistic (:mod:`synthcorona.dimming.statistics`) at a
-false-alarm probability (:mod:`synthcorona.dimming.thresholds`), then measures the fraction of
-simulations *with* the event above the threshold (injection--recovery), with its binomial
-standard error and the Wilson (1927, JASA 22, 209) score interval.
+:func:`detection_probability` measures the fraction of simulated light curves *with* the event
+in which a test statistic (:mod:`synthcorona.dimming.statistics`) exceeds its detection
+threshold at a false-alarm probability (injection--recovery), with its error and the Wilson
+(1927, JASA 22, 209) score interval.
 
-Exact data reduction: a window statistic depends only on the window sums, which are drawn
-directly as Poisson variables (see :mod:`synthcorona.dimming.noise`); the likelihood ratio
-depends on the counts only through the sums over bins sharing the same ratio
-:math:`D_i/B_i` (since :math:`\ln(aB_i - \delta D_i) = \ln B_i + \ln(a - \delta D_i/B_i)`),
-so such bins (e.g. all pre-event bins, where :math:`D = 0`) are merged before simulating.
-Both reductions leave the statistic's distribution unchanged.
+Onset. By default (``onset="scan"``) the statistic is maximised over trial onsets and recovery
+times (:mod:`synthcorona.dimming.scan`), as a search of an untriggered observation must; with
+``onset="known"`` only the true onset is tested (a triggered observation).
+
+Threshold. Where the null distribution is known exactly -- the window test with the onset known
+and Poisson noise only -- the exact conditional binomial test is used: detect when its p-value is
+<= ``false_alarm`` (Przyborowski & Wilenski 1940, Biometrika 31, 313; the p-value is that of
+``scipy.stats.binomtest(..., alternative="less")``), so P(detect | no event) <= ``false_alarm``
+exactly (:func:`~synthcorona.dimming.statistics.window_test_size` gives the achieved value).
+Everywhere else (scan, red noise, the likelihood ratio) the threshold is calibrated on event-free
+simulations with the same statistic (:mod:`synthcorona.dimming.thresholds`): detect when the
+statistic is > threshold.
+
+Errors. ``probability_error`` combines the binomial error of the injected simulations,
+sqrt(P(1 - P)/n), with the scatter that the threshold's calibration causes (the exact bootstrap
+of the calibration set, :func:`~synthcorona.dimming.thresholds.calibration_error`), in
+quadrature; both parts are reported.
+
+Exact data reduction: a window statistic depends only on window sums, which are drawn directly as
+Poisson variables (see :mod:`synthcorona.dimming.noise`); the likelihood ratio depends on the
+counts only through the sums over bins sharing the same ratio :math:`D_i/B_i` (since
+:math:`\ln(aB_i - \delta D_i) = \ln B_i + \ln(a - \delta D_i/B_i)`), so such bins (e.g. all
+pre-event bins, where :math:`D = 0`) are merged before simulating. Both reductions leave the
+statistic's distribution unchanged.
 
 :func:`minimum_detectable` finds the event parameter (e.g. CME mass) at which the detection
 probability reaches a target, with :func:`scipy.optimize.brentq` on the log of the
 parameter. Every evaluation uses the same seed (common random numbers) and the Poisson
-inversion sampler, whose counts are monotone in the expected counts, so the estimated
-detection probability is a monotone step function of the dimming depth.
+inversion sampler, whose counts are monotone in the expected counts, so with a known onset the
+estimated detection probability is a monotone step function of the dimming depth (with the scan,
+nearly so: a deeper dimming can also lower trials whose baseline it overlaps).
 """
 from __future__ import annotations
 
-import hashlib
 import math
 from typing import Callable
 
@@ -32,155 +49,12 @@ from scipy import optimize
 
 from ..errors import BracketError, InputError
 from ..validation import check_range
-from .noise import (
-    MEMORY_BUDGET,
-    CountSampler,
-    RedNoise,
-    as_seed_sequence,
-    bin_widths,
-    check_count,
-    child_sequence,
-    rate_values,
-    time_values,
-)
-from .statistics import fit_likelihood_ratio, likelihood_templates, window_sigma
-from .thresholds import check_false_alarm, collect_statistic, threshold_from_null
+from .injection import STATISTICS, DetectionSetup, threshold_is_exact
+from .noise import MEMORY_BUDGET, rate_values
+from .scan import DEFAULT_RECOVERY_FACTORS, ONSET_MODES
 
-__all__ = ["STATISTICS", "detection_probability", "minimum_detectable"]
-
-#: The test statistics of a detection: the window test and the likelihood ratio.
-STATISTICS = ("window", "likelihood")
+__all__ = ["STATISTICS", "ONSET_MODES", "detection_probability", "minimum_detectable", "threshold_is_exact"]
 _WILSON_Z = 1.0  # 1-sigma (68.27 %) Wilson score interval
-
-
-class _Setup:
-    """Validated settings shared by every case / parameter value of one detection calculation."""
-
-    def __init__(self, n_bins, bin_width, false_alarm, n_realisations, statistic, windows, seed, background,
-                 red_noise, start_time, fit_scale, chunk_size, memory_budget):
-        self.n = check_count("n_realisations", n_realisations)
-        self.alpha = check_false_alarm(false_alarm, self.n)
-        if statistic not in STATISTICS:
-            raise InputError(f"statistic={statistic!r} must be one of {STATISTICS}")
-        self.statistic = statistic
-        self.widths = bin_widths(bin_width, n_bins)
-        self.t0 = float(time_values("start_time", start_time, positive=False))
-        edges = self.t0 + np.concatenate([[0.0], np.cumsum(self.widths)])
-        self.centres = 0.5 * (edges[1:] + edges[:-1])
-        self.edges = edges
-        self.bg = None
-        if background is not None:
-            bgr = rate_values("background", background)
-            if bgr.ndim not in (0, 1) or (bgr.ndim == 1 and bgr.shape != (n_bins,)):
-                raise InputError(f"background has shape {bgr.shape}; give a scalar or one rate per bin, ({n_bins},)")
-            self.bg = np.broadcast_to(bgr, (n_bins,)) * self.widths
-        self.red_noise = RedNoise.coerce(red_noise)
-        self.fit_scale = bool(fit_scale)
-        self.chunk_size = None if chunk_size is None else check_count("chunk_size", chunk_size)
-        self.memory_budget = check_count("memory_budget", memory_budget, lo=2**16)
-        self.seq = as_seed_sequence(seed)
-        self.null_seq = child_sequence(self.seq, 0)
-        self.event_seq = child_sequence(self.seq, 1)
-        self.windows = None
-        if statistic == "window":
-            self._set_windows(windows)
-        elif windows is not None:
-            raise InputError("windows applies only to statistic='window'; the likelihood statistic fits every bin")
-        self.cache: dict = {}
-
-    def _set_windows(self, windows):
-        if windows is None:
-            raise InputError("statistic='window' needs windows=((pre_start, pre_stop), (post_start, post_stop)) "
-                             "as times (Quantity) on the light curve's clock")
-        try:
-            w = u.Quantity([u.Quantity(x, copy=False).to(u.s) for pair in windows for x in pair])
-        except (TypeError, ValueError, u.UnitsError):
-            raise InputError(f"windows={windows!r} must be ((pre_start, pre_stop), (post_start, post_stop)) with "
-                             "time Quantities") from None
-        if w.shape != (4,):
-            raise InputError(f"windows must hold two (start, stop) pairs, got {w.size} values")
-        w = w.value.reshape(2, 2)
-        lo, hi = self.edges[0], self.edges[-1]
-        labels = np.full(self.widths.size, -1, dtype=np.int64)
-        for j, name in enumerate(("pre", "post")):
-            start, stop = w[j]
-            if not stop > start:
-                raise InputError(f"windows[{j}] ({name}) = ({start:g} s, {stop:g} s): stop must be later than start")
-            if start < lo - 1e-9 * abs(lo) or stop > hi + 1e-9 * abs(hi):
-                raise InputError(f"windows[{j}] ({name}) = ({start:g} s, {stop:g} s) is outside the light curve "
-                                 f"[{lo:g} s, {hi:g} s]")
-            inside = (self.centres >= start) & (self.centres < stop)
-            if not np.any(inside):
-                raise InputError(f"windows[{j}] ({name}) = ({start:g} s, {stop:g} s) contains no bin centre: its "
-                                 f"exposure ({stop - start:g} s) is shorter than a bin "
-                                 f"({self.widths[np.argmin(np.abs(self.centres - start))]:g} s)")
-            if np.any(labels[inside] >= 0):
-                raise InputError(f"windows overlap: the pre window ({w[0, 0]:g}-{w[0, 1]:g} s) and post window "
-                                 f"({w[1, 0]:g}-{w[1, 1]:g} s) share bins")
-            labels[inside] = j
-        self.windows = w
-        self.labels = labels
-        self.t_pre = float(self.widths[labels == 0].sum())
-        self.t_post = float(self.widths[labels == 1].sum())
-        self.q = self.t_post / (self.t_pre + self.t_post)
-
-    # ---------------------------------------------------------------- one case
-    def _sampler(self, mu, groups):
-        return CountSampler.from_expected_counts(mu, background=self.bg, times=self.centres,
-                                                 red_noise=self.red_noise, groups=groups)
-
-    def statistic_for(self, mu_with, mu_without):
-        """(statistic_fn, groups, cache key) for one case."""
-        if self.statistic == "window":
-            q = self.q
-
-            def fn(chunk):
-                return window_sigma(chunk[:, 0], chunk[:, 1], q)[0]
-
-            return fn, self.labels, ("window", _digest(mu_without))
-        base = mu_without if self.bg is None else mu_without + self.bg
-        dim = mu_without - mu_with
-        try:
-            B, D = likelihood_templates(base, dim, self.fit_scale)
-        except InputError as err:
-            raise InputError(f"statistic='likelihood' (baseline = expected_without_event [+ background], dimming "
-                             f"= expected_without_event - expected_with_event, in counts per bin): {err}") from None
-        ratio = D / B
-        _, labels = np.unique(ratio, return_inverse=True)
-        labels = labels.reshape(-1).astype(np.int64)
-        n_groups = int(labels.max()) + 1
-        if n_groups == B.size:
-            groups, Bg, Dg = None, B, D
-        else:
-            groups = labels
-            Bg = np.bincount(labels, weights=B, minlength=n_groups)
-            Dg = np.bincount(labels, weights=D, minlength=n_groups)
-        fit_scale = self.fit_scale
-
-        def fn(chunk):
-            return fit_likelihood_ratio(chunk, Bg, Dg, fit_scale).ts
-
-        # TS is unchanged when D is scaled by c > 0 (delta absorbs c): key on the normalised template.
-        return fn, groups, ("likelihood", _digest(mu_without), _digest(D / np.abs(D).max()))
-
-    def run(self, mu_with, mu_without):
-        """Threshold (cached per null) and detection count for one case."""
-        fn, groups, key = self.statistic_for(mu_with, mu_without)
-        thr = self.cache.get(key)
-        if thr is None:
-            null = self._sampler(mu_without, groups)
-            values = collect_statistic(fn, null(self.n, self.null_seq, self.chunk_size, self.memory_budget), self.n)
-            thr = threshold_from_null(values, self.alpha)
-            self.cache[key] = thr
-        event = self._sampler(mu_with, groups)
-        hits = 0
-        for chunk in event(self.n, self.event_seq, self.chunk_size, self.memory_budget):
-            hits += int(np.count_nonzero(fn(chunk) > thr.threshold))
-        return thr, hits, event.method
-
-
-def _digest(a: np.ndarray) -> str:
-    return hashlib.sha1(np.ascontiguousarray(a, dtype=float).tobytes()).hexdigest()
 
 
 def _wilson(k, n, z=_WILSON_Z):
@@ -202,18 +76,20 @@ def _rates_2d(name, value, n_bins=None):
 
 def detection_probability(expected_with_event, expected_without_event, bin_width, false_alarm=0.01,
                           n_realisations=10_000, statistic="window", windows=None, seed=None, *,
+                          onset="scan", recovery_factors=DEFAULT_RECOVERY_FACTORS, scan_step=None,
                           background=None, red_noise=None, start_time=0 * u.s, fit_scale=True, case=None,
                           chunk_size=None, memory_budget=MEMORY_BUDGET) -> xr.Dataset:
     """Probability of detecting a dimming, by injection and recovery in simulated light curves.
 
-    ``n_realisations`` Poisson realisations of the light curve *without* the event calibrate
-    the detection threshold at ``false_alarm``
-    (:func:`~synthcorona.dimming.thresholds.calibrate_threshold`); as many of the light curve
-    *with* the event (independent random numbers) give the fraction detected.
-    Vectorised over realisations and processed in chunks within ``memory_budget``. Same
-    seed => same numbers for any ``chunk_size``; cases share the random numbers (common
-    random numbers), so with the default inversion sampler the probability is monotone in
-    the dimming depth across cases.
+    ``n_realisations`` realisations of the light curve *with* the event give the fraction
+    detected. The threshold is exact for the window test with ``onset="known"`` and Poisson
+    noise only (detect when the p-value is <= ``false_alarm``); otherwise ``n_realisations``
+    realisations *without* the event (independent random numbers) calibrate it
+    (:func:`~synthcorona.dimming.thresholds.threshold_from_null`; detect when the statistic is
+    > threshold). Vectorised over realisations and processed in chunks within
+    ``memory_budget``. Same seed => same numbers for any ``chunk_size``; cases share the random
+    numbers (common random numbers), so with the default inversion sampler and a known onset the
+    probability is monotone in the dimming depth across cases.
 
     Parameters
     ----------
@@ -224,19 +100,32 @@ def detection_probability(expected_with_event, expected_without_event, bin_width
     bin_width : Quantity [time]
         Scalar or per-bin (> 0).
     false_alarm : float in (0, 1)
-        False-alarm probability of the detection threshold; ``false_alarm * n_realisations >= 10``.
+        False-alarm probability of the detection threshold, per observation (whole scan);
+        ``false_alarm * n_realisations >= 10``.
     n_realisations : int
-        Realisations for the calibration and for the injection, each.
+        Realisations for the calibration and for the injection, each
+        (:func:`synthcorona.dimming.sizes.realisations_for_precision` gives the number for a precision).
     statistic : {"window", "likelihood"}
-        "window": significance (sigma) of the exact conditional test between ``windows``
-        (:func:`~synthcorona.dimming.statistics.window_test`). "likelihood": TS of
+        "window": significance (sigma) of the exact conditional test between the pre- and
+        post-event windows, with the expected post-window share of the event-free light curve
+        (:func:`~synthcorona.dimming.statistics.window_sigma`). "likelihood": TS of
         :func:`~synthcorona.dimming.statistics.likelihood_ratio` with baseline =
         without-event counts (+ background) and dimming template = without - with (so the
         injected depth is delta = 1).
     windows : ((pre_start, pre_stop), (post_start, post_stop)) of time Quantities
-        Required for "window". Times on the light curve's clock (first bin's left edge at
-        ``start_time``); a bin belongs to a window when its centre lies in [start, stop).
+        Required for "window": the windows of the true onset (``pre_stop``). Times on the light
+        curve's clock (first bin's left edge at ``start_time``); a bin belongs to a window when its
+        centre lies in [start, stop).
     seed : None, int, SeedSequence or numpy Generator
+    onset : {"scan", "known"}
+        "scan" (default): the statistic is maximised over trial onsets and duration factors
+        (:mod:`synthcorona.dimming.scan`) and calibrated with the same scan, so ``false_alarm``
+        applies per observation. "known": only the true onset is tested (a triggered observation).
+    recovery_factors : sequence of float
+        Scan: duration factors tried (the event's rise and recovery stretched by each; default
+        (0.5, 1, 2)).
+    scan_step : Quantity [time], optional
+        Scan: step of the trial onsets (default 1/8 of the event's duration, whole bins).
     background : Quantity [ct/s], scalar or (n_bins,), optional
         Background rate in every realisation (also in the likelihood baseline).
     red_noise : RedNoise or (amplitude, timescale), optional
@@ -254,13 +143,17 @@ def detection_probability(expected_with_event, expected_without_event, bin_width
     Returns
     -------
     xarray.Dataset
-        ``probability`` (P(detect)), ``probability_error`` (binomial sqrt(P(1-P)/n)),
-        ``probability_lower``/``probability_upper`` (68 % Wilson 1927 score interval, useful
-        near 0 and 1), ``threshold`` and ``threshold_error`` (statistic units),
-        ``false_alarm_achieved`` and ``false_alarm_error`` of the calibration; for the window
+        ``probability`` (P(detect)); ``probability_error``, the quadrature sum of
+        ``probability_error_binomial`` (sqrt(P(1-P)/n)) and ``probability_error_calibration``
+        (the threshold's calibration scatter, exact bootstrap; 0 for an exact threshold);
+        ``probability_lower``/``probability_upper`` (68 % Wilson 1927 score interval, widened in
+        quadrature by the calibration part); ``threshold`` and ``threshold_error`` (statistic
+        units; for an exact threshold the significance of p = ``false_alarm``);
+        ``false_alarm_achieved`` (calibration: fraction of the event-free simulations above the
+        threshold; exact: the test's exact size) and ``false_alarm_error``; for the window
         statistic also ``snr_expected`` (:func:`~synthcorona.dimming.statistics.step_snr` of the
-        with-event windows). Dimension ``case`` when several cases are given. Attributes record
-        the settings and seed.
+        with-event windows of the true onset). Dimension ``case`` when several cases are given.
+        Attributes record the settings, seed, onset mode and threshold method.
     """
     r_with = _rates_2d("expected_with_event", expected_with_event)
     n_bins = r_with.shape[-1]
@@ -271,22 +164,24 @@ def detection_probability(expected_with_event, expected_without_event, bin_width
     if rw.shape[0] != ro.shape[0] and 1 not in (rw.shape[0], ro.shape[0]):
         raise InputError(f"expected_with_event has {rw.shape[0]} cases but expected_without_event has {ro.shape[0]}")
     n_cases = max(rw.shape[0], ro.shape[0])
-    setup = _Setup(n_bins, bin_width, false_alarm, n_realisations, statistic, windows, seed, background,
-                   red_noise, start_time, fit_scale, chunk_size, memory_budget)
+    setup = DetectionSetup(n_bins, bin_width, false_alarm, n_realisations, statistic, windows, seed, background,
+                           red_noise, start_time, fit_scale, chunk_size, memory_budget, onset, recovery_factors,
+                           scan_step)
     res = _run_cases(setup, rw * setup.widths, ro * setup.widths, n_cases)
     return _dataset(setup, res, multi, case, n_cases)
 
 
-def _run_cases(setup: _Setup, mu_with, mu_without, n_cases):
+def _run_cases(setup: DetectionSetup, mu_with, mu_without, n_cases):
     out = {k: np.empty(n_cases) for k in ("probability", "threshold", "threshold_error", "false_alarm_achieved",
-                                          "false_alarm_error", "hits")}
+                                          "false_alarm_error", "hits", "calibration_error")}
     method = None
     for c in range(n_cases):
         mw = mu_with[c if mu_with.shape[0] > 1 else 0]
         mo = mu_without[c if mu_without.shape[0] > 1 else 0]
-        thr, hits, method = setup.run(mw, mo)
+        thr, hits, cal, method = setup.run(mw, mo)
         out["hits"][c] = hits
         out["probability"][c] = hits / setup.n
+        out["calibration_error"][c] = cal
         out["threshold"][c] = thr.threshold
         out["threshold_error"][c] = thr.threshold_error
         out["false_alarm_achieved"][c] = thr.false_alarm_achieved
@@ -303,10 +198,24 @@ def _run_cases(setup: _Setup, mu_with, mu_without, n_cases):
     return out
 
 
-def _dataset(setup: _Setup, res, multi, case, n_cases) -> xr.Dataset:
+def _method_text(setup: DetectionSetup) -> str:
+    stat = ("exact conditional binomial test of two Poisson rates (Przyborowski & Wilenski 1940, Biometrika 31, 313)"
+            if setup.statistic == "window" else "Poisson likelihood ratio, C-statistic (Cash 1979, ApJ 228, 939)")
+    onset = ("onset known" if setup.onset == "known" else
+             f"maximised over {setup.n_trials} trial onsets and duration factors (synthcorona.dimming.scan)")
+    thr = ("detect when p-value <= false_alarm (exact threshold)" if setup.exact else
+           "threshold = order statistic of event-free simulations with the same statistic (rank rule, Dwass 1957)")
+    return f"injection-recovery; {stat}, {onset}; {thr}"
+
+
+def _dataset(setup: DetectionSetup, res, multi, case, n_cases) -> xr.Dataset:
     n = setup.n
     p = res["probability"]
+    cal = res["calibration_error"]
+    binom = np.sqrt(p * (1 - p) / n)
     lo, hi = _wilson(res["hits"], n)
+    lo = np.clip(p - np.hypot(p - lo, cal), 0.0, 1.0)
+    hi = np.clip(p + np.hypot(hi - p, cal), 0.0, 1.0)
     stat_units = "sigma" if setup.statistic == "window" else "1 (Delta C)"
     dims = ("case",) if multi else ()
 
@@ -315,15 +224,23 @@ def _dataset(setup: _Setup, res, multi, case, n_cases) -> xr.Dataset:
 
     data = {
         "probability": (dims, v(p), {"units": "1", "long_name": "detection probability P(detect)"}),
-        "probability_error": (dims, v(np.sqrt(p * (1 - p) / n)),
-                              {"units": "1", "long_name": "binomial standard error sqrt(P(1-P)/n)"}),
-        "probability_lower": (dims, v(lo), {"units": "1", "long_name": "Wilson (1927) 68% score interval, lower"}),
-        "probability_upper": (dims, v(hi), {"units": "1", "long_name": "Wilson (1927) 68% score interval, upper"}),
+        "probability_error": (dims, v(np.hypot(binom, cal)),
+                              {"units": "1", "long_name": "standard error of P(detect): binomial and threshold "
+                                                          "calibration in quadrature"}),
+        "probability_error_binomial": (dims, v(binom), {"units": "1",
+                                                        "long_name": "binomial standard error sqrt(P(1-P)/n)"}),
+        "probability_error_calibration": (dims, v(cal), {"units": "1", "long_name": "scatter of P(detect) from the "
+                                                         "threshold's calibration (exact bootstrap)"}),
+        "probability_lower": (dims, v(lo), {"units": "1", "long_name": "68% interval, lower (Wilson 1927 score "
+                                                                      "interval, calibration scatter added)"}),
+        "probability_upper": (dims, v(hi), {"units": "1", "long_name": "68% interval, upper (Wilson 1927 score "
+                                                                      "interval, calibration scatter added)"}),
         "threshold": (dims, v(res["threshold"]), {"units": stat_units, "long_name": "detection threshold"}),
         "threshold_error": (dims, v(res["threshold_error"]),
                             {"units": stat_units, "long_name": "threshold standard error (binomial rank spread)"}),
         "false_alarm_achieved": (dims, v(res["false_alarm_achieved"]),
-                                 {"units": "1", "long_name": "fraction of calibration simulations above threshold"}),
+                                 {"units": "1", "long_name": "false-alarm probability achieved (exact test: its "
+                                  "size; calibrated: fraction of event-free simulations above threshold)"}),
         "false_alarm_error": (dims, v(res["false_alarm_error"]),
                               {"units": "1", "long_name": "binomial standard error of the false-alarm fraction"}),
     }
@@ -341,47 +258,57 @@ def _dataset(setup: _Setup, res, multi, case, n_cases) -> xr.Dataset:
         if cv.shape != (n_cases,):
             raise InputError(f"case has shape {cv.shape}; expected ({n_cases},), one label per case")
         coords["case"] = ("case", cv, attrs)
+    return xr.Dataset(data, coords=coords, attrs=_attrs(setup, res["method"]))
+
+
+def _attrs(setup: DetectionSetup, sampler) -> dict:
     attrs = {
         "statistic": setup.statistic,
+        "onset": setup.onset,
+        "threshold_method": "exact" if setup.exact else "calibrated",
+        "n_trials": int(setup.n_trials),
         "false_alarm": setup.alpha,
-        "n_realisations": n,
+        "n_realisations": setup.n,
         "seed_entropy": str(setup.seq.entropy),
         "seed_spawn_key": str(tuple(setup.seq.spawn_key)),
-        "sampler": res["method"] or "",
+        "sampler": sampler or "",
         "n_bins": int(setup.widths.size),
         "red_noise": "none" if setup.red_noise is None else setup.red_noise.description,
-        "method": ("injection-recovery; threshold = empirical (1 - false_alarm) quantile of event-free simulations; "
-                   + ("exact conditional binomial test of two Poisson rates (Przyborowski & Wilenski 1940, "
-                      "Biometrika 31, 313)" if setup.statistic == "window" else
-                      "Poisson likelihood ratio, C-statistic (Cash 1979, ApJ 228, 939)")),
+        "method": _method_text(setup),
     }
+    if setup.onset == "scan":
+        attrs["recovery_factors"] = list(setup.factors)
+        if setup.window_grid is not None:
+            attrs["scan_step_s"] = setup.window_grid.step
     if setup.windows is not None:
         attrs["windows_s"] = setup.windows.ravel().tolist()
         attrs["t_pre_s"] = setup.t_pre
         attrs["t_post_s"] = setup.t_post
     if setup.statistic == "likelihood":
         attrs["fit_scale"] = int(setup.fit_scale)
-    return xr.Dataset(data, coords=coords, attrs=attrs)
+    return attrs
 
 
 # ----------------------------------------------------------------------------- minimum detectable
 def minimum_detectable(param_to_expected: Callable, bin_width, *, bracket, target_probability=0.5,
                        false_alarm=0.01, n_realisations=10_000, statistic="window", windows=None, seed=0,
-                       xtol=1e-3, background=None, red_noise=None, start_time=0 * u.s, fit_scale=True,
+                       xtol=1e-3, onset="scan", recovery_factors=DEFAULT_RECOVERY_FACTORS, scan_step=None,
+                       background=None, red_noise=None, start_time=0 * u.s, fit_scale=True,
                        chunk_size=None, memory_budget=MEMORY_BUDGET) -> xr.Dataset:
     """Event parameter (e.g. CME mass) at which the detection probability reaches a target.
 
     Solves P(detect)(param) = ``target_probability`` with :func:`scipy.optimize.brentq` on
     ln(param) inside ``bracket``. Every evaluation of :func:`detection_probability` uses the
     same seed (common random numbers) and the inversion sampler (counts monotone in the
-    expected counts), so P(param) is a monotone step function of the dimming depth rather
-    than a noisy curve (exactly so for the window statistic; with red noise and the likelihood
+    expected counts), so P(param) is a step function of the dimming depth rather than a noisy
+    curve (monotone for the window statistic with a known onset; with red noise and the likelihood
     statistic on more than 16 distinct bin groups the sampler is ``Generator.poisson``, which
     is not monotone, and P(param) carries Monte Carlo jitter of order its binomial error);
-    thresholds are cached per distinct event-free light curve. The
-    Monte Carlo uncertainty of the result, ``parameter_error``, is the binomial error of P
-    at the target divided by the slope dP/d ln(param), measured between
-    ln(param) +- 0.05 (two extra evaluations).
+    thresholds are cached per distinct event-free light curve. The Monte Carlo uncertainty of
+    the result, ``parameter_error``, is the error of P at the root -- binomial and threshold
+    calibration (:func:`detection_probability`) in quadrature -- divided by the slope
+    dP/d ln(param), measured between ln(param) +- 0.05 (two extra evaluations); both parts are
+    also given separately.
 
     Parameters
     ----------
@@ -395,14 +322,15 @@ def minimum_detectable(param_to_expected: Callable, bin_width, *, bracket, targe
         e.g. 0.5 or 0.9.
     xtol : float
         Tolerance on ln(param) (default 1e-3, i.e. 0.1 %).
-    false_alarm, n_realisations, statistic, windows, seed, background, red_noise, start_time
-        As in :func:`detection_probability` (and ``fit_scale``, ``chunk_size``, ``memory_budget``);
-        ``seed=None`` draws one fresh seed used for all evaluations.
+    false_alarm, n_realisations, statistic, windows, seed, onset, recovery_factors, scan_step, background, red_noise
+        As in :func:`detection_probability` (and ``start_time``, ``fit_scale``, ``chunk_size``,
+        ``memory_budget``); ``seed=None`` draws one fresh seed used for all evaluations.
 
     Returns
     -------
     xarray.Dataset
-        ``parameter``, ``parameter_error``, ``probability`` (at ``parameter``),
+        ``parameter``, ``parameter_error`` (with ``parameter_error_binomial`` and
+        ``parameter_error_calibration``), ``probability`` (at ``parameter``),
         ``probability_error``, ``slope`` (dP/d ln param), and the evaluations made
         (``evaluated_parameter``, ``evaluated_probability`` along ``evaluation``).
     """
@@ -414,7 +342,7 @@ def minimum_detectable(param_to_expected: Callable, bin_width, *, bracket, targe
     lo_v, hi_v, unit = _parse_bracket(bracket)
     prob = _ProbabilityCurve(param_to_expected, unit, (bin_width, false_alarm, n_realisations, statistic, windows,
                                                        seed, background, red_noise, start_time, fit_scale, chunk_size,
-                                                       memory_budget))
+                                                       memory_budget, onset, recovery_factors, scan_step))
     xlo, xhi = math.log(lo_v), math.log(hi_v)
     p_lo, p_hi = prob(xlo), prob(xhi)
     setup = prob.setup
@@ -433,10 +361,13 @@ def minimum_detectable(param_to_expected: Callable, bin_width, *, bracket, targe
     p_root = prob(x_root)
     h = 0.05
     slope = (prob(x_root + h) - prob(x_root - h)) / (2 * h)
-    sig_p = math.sqrt(target * (1 - target) / setup.n)
     value = math.exp(x_root)
-    par_err = value * sig_p / abs(slope) if slope != 0 else math.inf
-    return _minimum_detectable_dataset(prob, unit, value, par_err, p_root, target, slope, (lo_v, hi_v),
+    sig_b = math.sqrt(target * (1 - target) / setup.n)
+    sig_c = prob.calibration[x_root]
+    errors = tuple(value * sig / abs(slope) if slope != 0 else math.inf for sig in (math.hypot(sig_b, sig_c), sig_b,
+                                                                                      sig_c))
+    p_err = math.hypot(math.sqrt(p_root * (1 - p_root) / setup.n), sig_c)
+    return _minimum_detectable_dataset(prob, unit, value, errors, (p_root, p_err), target, slope, (lo_v, hi_v),
                                        (p_lo, p_hi), xtol)
 
 
@@ -463,14 +394,16 @@ def _parse_bracket(bracket):
 class _ProbabilityCurve:
     """P(detect) as a function of x = ln(param) for :func:`minimum_detectable`, each value computed once.
 
-    ``settings``: the arguments of :class:`_Setup` after ``n_bins`` (the setup is made at the first
-    evaluation, when the number of bins is known). ``evals`` maps x to P(detect).
+    ``settings``: the arguments of :class:`DetectionSetup` after ``n_bins`` (the setup is made at the
+    first evaluation, when the number of bins is known). ``evals`` maps x to P(detect),
+    ``calibration`` x to the calibration part of its error.
     """
 
     def __init__(self, param_to_expected, unit, settings):
         self.param_to_expected, self.unit, self.settings = param_to_expected, unit, settings
         self.setup = None
         self.evals: dict[float, float] = {}
+        self.calibration: dict[float, float] = {}
 
     def __call__(self, x: float) -> float:
         if x in self.evals:
@@ -488,38 +421,46 @@ class _ProbabilityCurve:
         if rw.ndim != 1 or ro.ndim != 1:
             raise InputError("param_to_expected must return 1-D light curves (one case per parameter value)")
         if self.setup is None:
-            self.setup = _Setup(rw.size, *self.settings)
+            self.setup = DetectionSetup(rw.size, *self.settings)
         elif self.setup.widths.size != rw.size:
             raise InputError(f"param_to_expected returned {rw.size} bins at param={value:g}, "
                              f"{self.setup.widths.size} before")
         setup = self.setup
         res = _run_cases(setup, (rw * setup.widths)[None], (ro * setup.widths)[None], 1)
         self.evals[x] = float(res["probability"][0])
+        self.calibration[x] = float(res["calibration_error"][0])
         return self.evals[x]
 
 
-def _minimum_detectable_dataset(prob: _ProbabilityCurve, unit, value, par_err, p_root, target, slope, bracket,
+def _minimum_detectable_dataset(prob: _ProbabilityCurve, unit, value, errors, p_at_root, target, slope, bracket,
                                 p_bracket, xtol) -> xr.Dataset:
-    """The result Dataset of :func:`minimum_detectable`."""
+    """The result Dataset of :func:`minimum_detectable`; ``errors`` = (total, binomial, calibration) of the parameter,
+    ``p_at_root`` = (P(detect), its error) at the parameter."""
     setup, evals = prob.setup, prob.evals
     xs = np.array(sorted(evals))
     unit_attr = {"units": unit.to_string()} if unit is not None else {}
+    p_root, p_err = p_at_root
     return xr.Dataset(
         {
             "parameter": ((), value, {**unit_attr, "long_name": f"parameter where P(detect) = {target:g}"}),
-            "parameter_error": ((), par_err, {**unit_attr,
-                                              "long_name": "Monte Carlo error: sigma_P / |dP/d ln param| x param"}),
+            "parameter_error": ((), errors[0], {**unit_attr, "long_name": "Monte Carlo error: sigma_P / "
+                                                "|dP/d ln param| x param, sigma_P binomial and calibration"}),
+            "parameter_error_binomial": ((), errors[1], {**unit_attr, "long_name": "binomial part"}),
+            "parameter_error_calibration": ((), errors[2], {**unit_attr, "long_name": "threshold calibration part"}),
             "probability": ((), p_root, {"units": "1", "long_name": "P(detect) at parameter"}),
-            "probability_error": ((), math.sqrt(p_root * (1 - p_root) / setup.n), {"units": "1"}),
+            "probability_error": ((), p_err, {"units": "1"}),
             "target_probability": ((), target, {"units": "1"}),
             "slope": ((), slope, {"units": "1", "long_name": "dP/d ln(param) between ln(param) +- 0.05"}),
             "evaluated_parameter": (("evaluation",), np.exp(xs), unit_attr),
             "evaluated_probability": (("evaluation",), np.array([evals[x] for x in xs]), {"units": "1"}),
         },
         attrs={
-            "statistic": setup.statistic, "false_alarm": setup.alpha, "n_realisations": setup.n,
+            "statistic": setup.statistic, "onset": setup.onset,
+            "threshold_method": "exact" if setup.exact else "calibrated", "n_trials": int(setup.n_trials),
+            "false_alarm": setup.alpha, "n_realisations": setup.n,
             "bracket": list(bracket), "probability_at_bracket": list(p_bracket), "n_evaluations": len(evals),
             "seed_entropy": str(setup.seq.entropy), "xtol_ln_param": float(xtol),
-            "method": "brentq on ln(param) with common random numbers (fixed seed) and inversion sampling",
+            "method": "brentq on ln(param) with common random numbers (fixed seed) and inversion sampling; "
+                      + _method_text(setup),
         },
     )

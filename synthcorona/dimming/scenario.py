@@ -520,13 +520,19 @@ class DimmingScenario:
         return xr.Dataset(data, coords={"band": self.labels, "time": ("time", centres, {"units": "s"})},
                           attrs=attrs)
 
-    def detection_probability(self, n_realisations: int = 10_000, statistic: str = "window", seed=None,
-                              band=None, mass=None) -> xr.Dataset:
+    def detection_probability(self, n_realisations: int | None = None, statistic: str = "window", seed=None,
+                              band=None, mass=None, onset: str = "scan", precision: float | None = None) -> xr.Dataset:
         """Detection probability per band (:func:`synthcorona.dimming.detection.detection_probability`).
 
-        The window statistic compares the pre-event interval [0, t0) with [t0 + onset,
-        t0 + onset + recovery_time) (cut at the end of the light curve; :meth:`detection_windows`).
+        ``onset="scan"`` (default): the onset and recovery time are unknown and scanned, and the
+        false-alarm probability holds per observation; ``"known"``: only the true onset is tested
+        (a triggered observation). The window statistic's reference windows are the pre-event
+        interval [0, t0) and [t0 + onset, t0 + onset + recovery_time) (cut at the end of the light
+        curve; :meth:`detection_windows`). ``n_realisations`` defaults to the number giving a standard
+        error ``precision`` (default 0.02) of P(detect)
+        (:func:`synthcorona.dimming.sizes.realisations_for_precision`); give one or the other.
         """
+        n = self._realisations(n_realisations, precision, statistic, onset)
         lc = self.light_curve(mass=mass)
         labels, background = self.labels, self.prepared.rates.background
         idx = range(len(labels)) if band is None else [self.band_index(band)]
@@ -534,14 +540,26 @@ class DimmingScenario:
         for b in idx:
             ds = detection.detection_probability(
                 lc["expected"].values[b] * u.ct / u.s, lc["expected_without_cme"].values[b] * u.ct / u.s,
-                self.bin_width * u.s, false_alarm=self.observation.false_alarm, n_realisations=n_realisations,
+                self.bin_width * u.s, false_alarm=self.observation.false_alarm, n_realisations=n,
                 statistic=statistic, windows=self.detection_windows() if statistic == "window" else None, seed=seed,
-                background=background[b] * u.ct / u.s, red_noise=self.observation.red_noise)
+                onset=onset, background=background[b] * u.ct / u.s, red_noise=self.observation.red_noise)
             out.append(ds.expand_dims(band=[labels[b]]))
         res = xr.concat(out, dim="band", combine_attrs="override")
         res.attrs.update(self.result_attrs())
         res.attrs["mass_g"] = float(lc.attrs["mass_g"])
         return res
+
+    def _realisations(self, n_realisations, precision, statistic, onset) -> int:
+        """Realisations per probability: ``n_realisations`` or the number for ``precision`` (default 0.02)."""
+        from .sizes import DEFAULT_PRECISION, realisations_for_precision
+
+        if n_realisations is not None:
+            if precision is not None:
+                raise InputError("give n_realisations or precision, not both", argument="precision")
+            return n_realisations
+        return realisations_for_precision(DEFAULT_PRECISION if precision is None else precision,
+                                          self.observation.false_alarm,
+                                          exact_threshold=detection.threshold_is_exact(statistic, onset))
 
     def best_band(self) -> str:
         """Band with the largest Gaussian-limit S/N of the full depth, delta q / sqrt(q + background)."""
@@ -550,17 +568,19 @@ class DimmingScenario:
         return self.labels[int(np.argmax(snr))]
 
     def minimum_detectable_mass(self, target_probability: float = 0.5, bracket=(1e13 * u.g, 1e18 * u.g),
-                                band=None, statistic: str = "window", n_realisations: int = 10_000, seed=0,
-                                xtol: float = 1e-2) -> xr.Dataset:
+                                band=None, statistic: str = "window", n_realisations: int | None = None, seed=0,
+                                xtol: float = 1e-2, onset: str = "scan", precision: float | None = None) -> xr.Dataset:
         """CME mass at which P(detect) = ``target_probability`` in ``band`` (default :meth:`best_band`).
 
-        Uses :func:`synthcorona.dimming.detection.minimum_detectable`. If the bracket's upper end
+        Uses :func:`synthcorona.dimming.detection.minimum_detectable`; ``onset``, ``n_realisations``
+        and ``precision`` as in :meth:`detection_probability`. If the bracket's upper end
         exceeds the largest mass the corona can supply it is lowered to that mass, and
         ``attrs["bracket_note"]`` says so.
         """
         if self.prepared.source.escape_fraction == 0:
             raise InputError("escape_fraction=0 (confined eruption): no mass leaves, so no mass-loss dimming is "
                              "detectable; valid range for this calculation: (0, 1]", argument="escape_fraction")
+        n = self._realisations(n_realisations, precision, statistic, onset)
         b = self.band_index(band if band is not None else self.best_band())
         lo_g, hi_g, note = self._mass_bracket(bracket)
         rates = self.prepared.rates
@@ -576,9 +596,9 @@ class DimmingScenario:
 
         res = detection.minimum_detectable(
             fn, self.bin_width * u.s, bracket=(lo_g * u.g, hi_g * u.g), target_probability=target_probability,
-            false_alarm=self.observation.false_alarm, n_realisations=n_realisations, statistic=statistic,
+            false_alarm=self.observation.false_alarm, n_realisations=n, statistic=statistic,
             windows=self.detection_windows() if statistic == "window" else None, seed=seed, xtol=xtol,
-            background=rates.background[b] * u.ct / u.s, red_noise=self.observation.red_noise)
+            onset=onset, background=rates.background[b] * u.ct / u.s, red_noise=self.observation.red_noise)
         res = res.rename({"parameter": "mass", "parameter_error": "mass_error"})
         res.attrs.update(self.result_attrs())
         res.attrs["band"] = self.labels[b]

@@ -4,9 +4,15 @@ Neither test statistic of :mod:`synthcorona.dimming.statistics` is trusted with 
 distribution: flares, trends and red noise break the equal-rate null of the window test and
 the asymptotics of the likelihood ratio. The detection threshold is therefore calibrated
 empirically (:func:`calibrate_threshold`): simulate the light curve *without* the event, and
-take the statistic value exceeded by a fraction ``false_alarm`` of the simulations (an order
-statistic; its uncertainty from the binomial spread of the rank, the distribution-free quantile
-interval, e.g. Conover 1999, Practical Nonparametric Statistics, section 3.2).
+take as threshold the order statistic of rank ``n - k`` of the ``n`` simulated values, with
+``k + 1 <= false_alarm (n + 1)``. An independent event-free light curve then exceeds it with
+probability (k + 1)/(n + 1) <= ``false_alarm`` (exactly so for a continuous statistic; lower with
+ties), averaged over calibrations: the rank rule of the Monte Carlo test (Dwass 1957, Ann. Math.
+Stat. 28, 181), so the false-alarm probability holds per observation for any number of
+simulations, not only as n grows. The threshold's uncertainty comes from the binomial spread of the
+rank (the distribution-free quantile interval, e.g. Conover 1999, Practical Nonparametric
+Statistics, section 3.2), and its effect on a detection probability from the exact bootstrap of
+the calibration set (:func:`calibration_error`).
 :mod:`synthcorona.dimming.detection` uses these thresholds for the detection probability.
 """
 from __future__ import annotations
@@ -15,13 +21,14 @@ import math
 from typing import Callable, Iterable, NamedTuple
 
 import numpy as np
+from scipy import stats
 
 from ..errors import InputError
 from ..validation import check_range
 from .noise import as_seed_sequence, check_count
 
-__all__ = ["MIN_EXCEEDANCES", "Threshold", "check_false_alarm", "threshold_from_null", "collect_statistic",
-           "calibrate_threshold"]
+__all__ = ["MIN_EXCEEDANCES", "Threshold", "check_false_alarm", "allowed_exceedances", "threshold_from_null",
+           "calibration_error", "collect_statistic", "calibrate_threshold"]
 
 #: Calibration needs at least this many expected null exceedances (false_alarm * n_realisations).
 MIN_EXCEEDANCES = 10
@@ -58,15 +65,27 @@ def check_false_alarm(false_alarm, n: int) -> float:
     return alpha
 
 
+def allowed_exceedances(alpha: float, n: int) -> int:
+    """Calibration values allowed above the threshold: the largest k with (k + 1)/(n + 1) <= ``alpha``.
+
+    With this k an independent event-free statistic exceeds the order statistic of rank n - k with
+    probability (k + 1)/(n + 1) <= alpha (Dwass 1957, Ann. Math. Stat. 28, 181); e.g. 9 for
+    alpha = 0.01 and n = 1000, 99 for n = 10,000.
+    """
+    k = int(math.floor(alpha * (n + 1) + 1e-9)) - 1
+    return max(k, 0)
+
+
 def threshold_from_null(stats_null: np.ndarray, alpha: float) -> Threshold:
     """The :class:`Threshold` at false-alarm probability ``alpha`` from the statistic values of the null simulations.
 
-    The order statistic exceeded by ``floor(alpha n)`` of the ``n`` values; its error from the
-    ranks ``+- sqrt(n alpha (1 - alpha))`` around it (see :func:`calibrate_threshold`).
+    The order statistic of rank ``n - k`` (k = :func:`allowed_exceedances`), exceeded by k of the
+    ``n`` values; its error from the ranks ``+- sqrt(n alpha (1 - alpha))`` around it (see
+    :func:`calibrate_threshold`).
     """
     s = np.sort(stats_null)
     n = s.size
-    k = int(math.floor(alpha * n + 1e-9))  # allowed exceedances
+    k = allowed_exceedances(alpha, n)
     idx = n - k - 1
     thr = float(s[idx])
     achieved = float(np.count_nonzero(s > thr)) / n
@@ -75,6 +94,49 @@ def threshold_from_null(stats_null: np.ndarray, alpha: float) -> Threshold:
     hi = s[min(int(round(idx + m)), n - 1)]
     thr_err = float(hi - lo) / 2.0 if np.isfinite(hi - lo) else math.inf
     return Threshold(thr, thr_err, alpha, achieved, math.sqrt(alpha * (1.0 - alpha) / n), n)
+
+
+def calibration_error(null_sorted: np.ndarray, event_values: np.ndarray, alpha: float) -> float:
+    """Standard deviation of a detection fraction caused by the threshold's calibration (exact bootstrap).
+
+    The threshold is the order statistic of rank n - k of the ``n`` calibration values
+    (:func:`threshold_from_null`). Resampling the calibration set with replacement, the threshold
+    T* of a resample is at most a value v when at least n - k resampled values are <= v, which has
+    probability ``P(Bin(n, F(v)) >= n - k)`` with F the empirical distribution of the calibration
+    values: the bootstrap distribution of T* is known exactly over the calibration values, so no
+    resampling is needed (the exact bootstrap of an order statistic; Hutson & Ernst 2000, J. R.
+    Stat. Soc. B 62, 89). The returned value is the standard deviation, over that
+    distribution, of the fraction of ``event_values`` above T*: the calibration part of the error
+    of P(detect). Zero when the threshold is exact.
+
+    Parameters
+    ----------
+    null_sorted : array (n,)
+        Calibration (event-free) statistic values, sorted ascending.
+    event_values : array (m,)
+        Statistic values of the simulations with the event.
+    alpha : float
+        False-alarm probability of the threshold.
+    """
+    s = np.asarray(null_sorted, dtype=float)
+    n = s.size
+    k = allowed_exceedances(alpha, n)
+    idx = n - k - 1
+    half = int(12.0 * math.sqrt(n * alpha * (1.0 - alpha))) + 3
+    lo, hi = max(idx - half, 0), min(idx + half, n - 1)
+    vals = np.unique(s[lo:hi + 1])
+    ecdf = np.searchsorted(s, vals, side="right") / n                  # F(v) over the calibration set
+    below = np.searchsorted(s, vals[0], side="left") / n
+    cdf_t = stats.binom.sf(n - k - 1, n, np.concatenate([[below], ecdf]))   # P(T* <= v), P(T* < first)
+    prob = np.diff(cdf_t)
+    total = prob.sum()
+    if not total > 0:
+        return 0.0
+    prob = prob / total
+    ev = np.sort(np.asarray(event_values, dtype=float))
+    frac = 1.0 - np.searchsorted(ev, vals, side="right") / ev.size     # fraction of events above v
+    mean = float(np.sum(prob * frac))
+    return float(math.sqrt(max(float(np.sum(prob * (frac - mean) ** 2)), 0.0)))
 
 
 def collect_statistic(statistic_fn, chunks: Iterable[np.ndarray], n: int) -> np.ndarray:
@@ -105,9 +167,11 @@ def calibrate_threshold(statistic_fn: Callable[[np.ndarray], np.ndarray], null_s
                         n_realisations, seed=None, *, chunk_size=None) -> Threshold:
     """Threshold on a statistic with a given false-alarm probability, from event-free simulations.
 
-    The threshold is the order statistic exceeded by ``floor(false_alarm * n)`` of the ``n``
-    null simulations (empirical ``1 - false_alarm`` quantile; detect when statistic >
-    threshold, so ties never raise the false-alarm rate above the request). Its standard
+    The threshold is the order statistic exceeded by k of the ``n`` null simulations, with k the
+    largest number such that (k + 1)/(n + 1) <= ``false_alarm`` (:func:`allowed_exceedances`;
+    Dwass 1957, Ann. Math. Stat. 28, 181): an independent event-free statistic exceeds it with
+    probability at most ``false_alarm``. Detect when statistic > threshold, so ties never raise
+    the false-alarm rate above the request. Its standard
     error comes from the binomial spread of the rank, sqrt(n alpha (1 - alpha)) (the
     distribution-free quantile interval, Conover 1999, Practical Nonparametric Statistics,
     sec. 3.2); the false-alarm fraction's own standard error is sqrt(alpha (1 - alpha) / n).

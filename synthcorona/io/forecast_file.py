@@ -31,7 +31,7 @@ from ..errors import InputError, ScenarioError
 from .toml import Section, abundances_from_key, dem_from_section, load_toml, read_input_text
 
 __all__ = ["ForecastInputs", "MonteCarlo", "InstrumentEntry", "read_forecast_file", "flare_energy_from_class",
-           "FLARE_CLASS_FLUX", "STATISTICS", "VARIABILITY_RANGES", "ONE_LINE_KEYS", "check_text_values"]
+           "FLARE_CLASS_FLUX", "STATISTICS", "VARIABILITY_RANGES", "ONE_LINE_KEYS", "check_text_values", "ONSETS"]
 
 #: Detection statistics of :meth:`DimmingScenario.detection_probability`.
 STATISTICS = ("window", "likelihood")
@@ -79,13 +79,21 @@ def check_text_values(root: Section) -> None:
 
 
 
+#: Onset options of the detection (:meth:`DimmingScenario.detection_probability`): scanned or known.
+ONSETS = ("scan", "known")
+
+
 @dataclass(frozen=True)
 class MonteCarlo:
-    """Monte Carlo settings: ``realisations`` per probability, ``seed``, ``statistic``."""
+    """Monte Carlo settings: ``realisations`` per probability, ``seed``, ``statistic``, ``onset`` ("scan" or
+    "known") and ``precision``, the standard error of P(detect) the realisations were sized for (None when
+    the file gives ``realisations``)."""
 
     realisations: int = 2000
     seed: int = 0
     statistic: str = "window"
+    onset: str = "scan"
+    precision: float | None = None
 
 
 @dataclass(frozen=True)
@@ -449,16 +457,35 @@ def _variability(root: Section):
 
 
 def _montecarlo(root: Section, mass, false_alarm: float):
-    from ..dimming.sizes import MIN_EXCEEDANCES, minimum_realisations
+    from ..dimming.sizes import (
+        DEFAULT_PRECISION,
+        MIN_EXCEEDANCES,
+        PRECISION_RANGE,
+        minimum_realisations,
+        realisations_for_precision,
+    )
     from ..products.forecast import REALISATIONS_RANGE
 
     m = root.section("montecarlo")
     if m is None:
         m = Section({}, "montecarlo", root.file)
     lo, hi = REALISATIONS_RANGE
-    mc = MonteCarlo(realisations=m.number("realisations", default=2000, lo=lo, hi=hi, integer=True),
-                    seed=m.number("seed", default=0, lo=0, hi=2 ** 63 - 1, integer=True),
-                    statistic=m.string("statistic", default="window", choices=STATISTICS))
+    statistic = m.string("statistic", default="window", choices=STATISTICS)
+    onset = m.string("onset", default="scan", choices=ONSETS)
+    if m.has("realisations") and m.has("precision"):
+        raise m.error("precision", "give either realisations or precision, not both")
+    precision = None
+    if m.has("realisations"):
+        n = m.number("realisations", lo=lo, hi=hi, integer=True, required=True)
+    else:
+        precision = m.number("precision", default=DEFAULT_PRECISION, lo=PRECISION_RANGE[0], hi=PRECISION_RANGE[1])
+        n = realisations_for_precision(precision, false_alarm,
+                                       exact_threshold=statistic == "window" and onset == "known")
+        if n > hi:
+            raise m.error("precision", f"needs {n} realisations, more than the {hi} a forecast accepts: ask for a "
+                                       "larger precision (standard error of P(detect))")
+    mc = MonteCarlo(realisations=n, seed=m.number("seed", default=0, lo=0, hi=2 ** 63 - 1, integer=True),
+                    statistic=statistic, onset=onset, precision=precision)
     need = minimum_realisations(false_alarm)
     if mc.realisations < need:
         raise m.error("realisations", f"too few to calibrate the detection threshold at [observation] false_alarm = "

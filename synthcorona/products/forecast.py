@@ -15,7 +15,10 @@
 * the detection probability at the scenario's CME mass and at every mass of the mass grid
   (:meth:`DimmingScenario.detection_probability`, injection-recovery with the same seed at
   every mass: common random numbers), and the minimum detectable mass at the target probability
-  (:meth:`DimmingScenario.minimum_detectable_mass`, Brent's method on ln M);
+  (:meth:`DimmingScenario.minimum_detectable_mass`, Brent's method on ln M), with the onset
+  scanned (default; the false-alarm probability holds per observation) or known
+  (``[montecarlo] onset``; ``attrs["onset"]`` records which), and errors that include the
+  threshold's calibration scatter;
 * the expected light curves with and without the CME, Poisson realisations of both, and the
   temperature responses used.
 
@@ -117,13 +120,13 @@ def check_realisations(n: int, false_alarm: float | None = None, name: str = "re
     return int(n)
 
 
-def _min_mass(scenario, band, target, bracket, statistic, n, seed):
+def _min_mass(scenario, band, target, bracket, statistic, n, seed, onset="scan"):
     """Minimum detectable mass of one band: (mass g, error g, note)."""
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
             res = scenario.minimum_detectable_mass(target, bracket=bracket, band=band, statistic=statistic,
-                                                   n_realisations=n, seed=seed)
+                                                   n_realisations=n, seed=seed, onset=onset)
     except BracketError as exc:
         lo, hi = (float(b.to_value(u.g)) for b in bracket)
         p_lo, p_hi = exc.values
@@ -194,7 +197,7 @@ def _light_curve_products(sc, nshow: int, seed: int):
     return lc, lc0, data, (w0, w1)
 
 
-def _mass_grid_products(sc, inputs, n, stat, seed) -> tuple[np.ndarray, dict, str]:
+def _mass_grid_products(sc, inputs, n, stat, seed, onset="scan") -> tuple[np.ndarray, dict, str]:
     """P(detect) and depth at every mass of the grid (common random numbers: the same seed at every mass).
 
     Returns (masses used [g], variables over ``mass`` and ``band``, note on masses left out).
@@ -211,13 +214,14 @@ def _mass_grid_products(sc, inputs, n, stat, seed) -> tuple[np.ndarray, dict, st
     for k, m in enumerate(grid):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
-            r = sc.detection_probability(n, statistic=stat, seed=seed, mass=m * u.g)
+            r = sc.detection_probability(n, statistic=stat, seed=seed, mass=m * u.g, onset=onset)
         pv[k], pe[k] = r["probability"].values, r["probability_error"].values
         plo[k], phi[k] = r["probability_lower"].values, r["probability_upper"].values
     depth_grid = sc.depths_for(grid) if grid.size else np.zeros((0, nb))
     data = {
         "probability_vs_mass": (("mass", "band"), pv, {"units": "1", "long_name": "P(detect) at each mass of the grid"}),
-        "probability_vs_mass_error": (("mass", "band"), pe, {"units": "1"}),
+        "probability_vs_mass_error": (("mass", "band"), pe, {"units": "1", "long_name": "standard error: binomial "
+                                                                       "and threshold calibration"}),
         "probability_vs_mass_lower": (("mass", "band"), plo, {"units": "1", "long_name": "Wilson 68 % lower"}),
         "probability_vs_mass_upper": (("mass", "band"), phi, {"units": "1", "long_name": "Wilson 68 % upper"}),
         "depth_vs_mass": (("mass", "band"), depth_grid, {"units": "1"}),
@@ -225,7 +229,7 @@ def _mass_grid_products(sc, inputs, n, stat, seed) -> tuple[np.ndarray, dict, st
     return grid, data, note
 
 
-def _minimum_mass_products(sc, inputs, grid, n, stat, seed) -> tuple[dict, tuple[float, float]]:
+def _minimum_mass_products(sc, inputs, grid, n, stat, seed, onset="scan") -> tuple[dict, tuple[float, float]]:
     """Minimum detectable mass per band in a bracket of 1/100 of the smallest to 100 x the largest grid mass
     (at most the largest removable mass). Returns (variables over ``band``, bracket in g)."""
     mmax = float(sc.max_mass.to_value(u.g))
@@ -238,12 +242,13 @@ def _minimum_mass_products(sc, inputs, grid, n, stat, seed) -> tuple[dict, tuple
     mme = np.full(nb, np.nan)
     notes = [""] * nb
     for b, lab in enumerate(sc.labels):
-        mm[b], mme[b], notes[b] = _min_mass(sc, lab, inputs.target_probability, bracket, stat, n, seed)
+        mm[b], mme[b], notes[b] = _min_mass(sc, lab, inputs.target_probability, bracket, stat, n, seed, onset)
     band = ("band",)
     data = {
         "minimum_detectable_mass": (band, mm, {"units": "g", "long_name": "CME mass with P(detect) = "
                                                                           f"{inputs.target_probability:g}"}),
-        "minimum_detectable_mass_error": (band, mme, {"units": "g", "long_name": "Monte Carlo error"}),
+        "minimum_detectable_mass_error": (band, mme, {"units": "g", "long_name": "Monte Carlo error (binomial and "
+                                                                       "threshold calibration)"}),
         "minimum_detectable_mass_note": (band, np.array(notes, dtype=object)),
     }
     return data, (lo_b, hi_b)
@@ -289,7 +294,12 @@ def _detection_variables(det, stat) -> dict:
     return {
         "probability": (band, det["probability"].values,
                         {"units": "1", "long_name": "P(detect) at the scenario's CME mass"}),
-        "probability_error": (band, det["probability_error"].values, {"units": "1", "long_name": "binomial error"}),
+        "probability_error": (band, det["probability_error"].values,
+                              {"units": "1", "long_name": "standard error: binomial and threshold calibration in "
+                                                          "quadrature"}),
+        "probability_error_calibration": (band, det["probability_error_calibration"].values,
+                                          {"units": "1", "long_name": "part of the error from the threshold's "
+                                                                      "calibration (0 for an exact threshold)"}),
         "probability_lower": (band, det["probability_lower"].values,
                               {"units": "1", "long_name": "Wilson (1927) 68 % score interval, lower"}),
         "probability_upper": (band, det["probability_upper"].values,
@@ -334,7 +344,7 @@ def _flare_variables(sc) -> tuple[dict, dict]:
     return data, attrs
 
 
-def _attrs(sc, table, inputs, n, seed, stat, bracket, mass_note, window) -> dict:
+def _attrs(sc, table, inputs, n, seed, stat, bracket, mass_note, window, det) -> dict:
     """Provenance: the scenario's settings, the scenario file's text and hash, the Monte Carlo and the table."""
     attrs = {k: (v if isinstance(v, (str, int, float)) else str(v)) for k, v in sc.result_attrs().items()}
     text = inputs.raw_text
@@ -350,6 +360,10 @@ def _attrs(sc, table, inputs, n, seed, stat, bracket, mass_note, window) -> dict
         "n_realisations": n,
         "seed": seed,
         "statistic": stat,
+        "onset": det.attrs["onset"],
+        "threshold_method": det.attrs["threshold_method"],
+        "n_trials": int(det.attrs["n_trials"]),
+        "realisations_from": _realisations_source(inputs, n),
         "false_alarm": float(inputs.observation.false_alarm),
         "target_probability": float(inputs.target_probability),
         "min_mass_bracket_g": f"{float(bracket[0])!r} {float(bracket[1])!r}",  # exact: the search can be redone
@@ -367,7 +381,7 @@ def _attrs(sc, table, inputs, n, seed, stat, bracket, mass_note, window) -> dict
 
 
 def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = None,
-                 show_realisations: int | None = None, table=None) -> xr.Dataset:
+                 show_realisations: int | None = None, table=None, onset: str | None = None) -> xr.Dataset:
     """All forecast products of a scenario (see the module docstring) as one Dataset.
 
     Parameters
@@ -384,6 +398,10 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
     table : EmissivityTable or path, optional
         Emissivity table (default: the one the scenario was built with, else see
         :func:`synthcorona.emissivity.resolve_table`); its provenance goes into the attrs.
+    onset : {"scan", "known"}, optional
+        Override the file's ``[montecarlo] onset``: scan the CME onset (and recovery time) over the
+        observation, or test the true onset only (a triggered observation). ``attrs["onset"]``
+        records which was used.
 
     Returns
     -------
@@ -401,6 +419,9 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
         raise InputError(f"seed={sd} must be a non-negative integer", argument="seed")
     nshow = int(inputs.output.get("show_realisations", 2) if show_realisations is None else show_realisations)
     stat = mc.statistic
+    onset = mc.onset if onset is None else onset
+    if onset not in ("scan", "known"):
+        raise InputError(f"onset={onset!r} must be 'scan' or 'known'", argument="onset")
     sc, tab = _scenario(inputs, table)
 
     # depth and profile
@@ -409,10 +430,10 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
     # detection at the scenario's mass
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
-        det = sc.detection_probability(n, statistic=stat, seed=sd)
+        det = sc.detection_probability(n, statistic=stat, seed=sd, onset=onset)
     # P(detect) vs mass, and the minimum detectable mass per band
-    grid, vs_mass, mass_note = _mass_grid_products(sc, inputs, n, stat, sd)
-    min_mass, bracket = _minimum_mass_products(sc, inputs, grid, n, stat, sd)
+    grid, vs_mass, mass_note = _mass_grid_products(sc, inputs, n, stat, sd, onset)
+    min_mass, bracket = _minimum_mass_products(sc, inputs, grid, n, stat, sd, onset)
 
     flare_vars, flare_attrs = _flare_variables(sc)
     data = {**_depth_variables(sc, d, lc_vars.pop("net_depth")), **lc_vars, **_detection_variables(det, stat),
@@ -428,8 +449,17 @@ def run_forecast(inputs, *, realisations: int | None = None, seed: int | None = 
               "band_lo": ("band", sc.prepared.kernels.band_limits[:, 0], {"units": "keV"}),
               "band_hi": ("band", sc.prepared.kernels.band_limits[:, 1], {"units": "keV"}),
               "instrument": ("band", [ins.name for _, ins, _ in sc.channels])}
-    attrs = {**_attrs(sc, tab, inputs, n, sd, stat, bracket, mass_note, window), **flare_attrs}
+    attrs = {**_attrs(sc, tab, inputs, n, sd, stat, bracket, mass_note, window, det), **flare_attrs}
     return xr.Dataset(data, coords=coords, attrs=attrs)
+
+
+def _realisations_source(inputs, n: int) -> str:
+    """How the number of realisations was chosen, for the attrs."""
+    mc = inputs.montecarlo
+    if n == mc.realisations and mc.precision is not None:
+        return (f"precision {mc.precision:g} (standard error of P(detect)) at false-alarm probability "
+                f"{float(inputs.observation.false_alarm):g} (synthcorona.dimming.sizes.realisations_for_precision)")
+    return "given" if n == mc.realisations else "given (override)"
 
 
 def forecast_tables(ds: xr.Dataset):
@@ -467,7 +497,7 @@ def forecast_tables(ds: xr.Dataset):
     t["minimum_detectable_mass"] = ds["minimum_detectable_mass"].values * u.g
     t["minimum_detectable_mass_error"] = ds["minimum_detectable_mass_error"].values * u.g
     t["note"] = [str(x) for x in ds["minimum_detectable_mass_note"].values]
-    keep = ("title", "scenario_file", "scenario_sha256", "cme_onset_time_s", "n_realisations", "seed", "statistic",
+    keep = ("title", "scenario_file", "scenario_sha256", "cme_onset_time_s", "n_realisations", "seed", "statistic", "onset",
             "false_alarm", "target_probability", "chianti_version", "table_content_hash", "synthcorona_version",
             "created")
     meta = {k: ds.attrs[k] for k in keep if k in ds.attrs}

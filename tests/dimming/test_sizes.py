@@ -1,7 +1,7 @@
 """Realisations a false-alarm threshold needs (synthcorona.dimming.sizes): at least 10 expected false alarms."""
 import pytest
 
-from synthcorona.dimming.sizes import MIN_EXCEEDANCES, minimum_realisations
+from synthcorona.dimming.sizes import MIN_EXCEEDANCES, minimum_realisations, realisations_for_precision
 from synthcorona.dimming.thresholds import calibrate_threshold
 from synthcorona.errors import InputError
 
@@ -35,3 +35,19 @@ def test_agrees_with_the_threshold_calibration(false_alarm):
 def test_false_alarm_outside_zero_one_is_refused(false_alarm):
     with pytest.raises(InputError, match="false_alarm"):
         minimum_realisations(false_alarm)
+
+
+@pytest.mark.parametrize("precision, false_alarm, exact, n", [(0.02, 0.01, False, 6171), (0.02, 0.01, True, 1000),
+                                                            (0.02, 0.05, False, 2402), (0.05, 0.05, True, 200),
+                                                            (0.01, 0.01, False, 24682)])
+def test_realisations_for_precision(precision, false_alarm, exact, n):
+    """Hand values of n = ceil((1/4 + alpha (1 - alpha) exp(z_alpha^2)) / precision^2), z_alpha = Phi^-1(1 - alpha)
+    (2.3263 for 0.01: 0.0099 x 224.05 = 2.2181; 1.6449 for 0.05: 0.0475 x 14.97 = 0.7111), calibration term
+    dropped for an exact threshold, at least 10 / alpha: e.g. (0.25 + 2.2181) / 0.0004 = 6170.3 -> 6171."""
+    assert realisations_for_precision(precision, false_alarm, exact) == n
+
+
+@pytest.mark.parametrize("precision", [0.0, 0.3, float("nan")])
+def test_precision_outside_range_is_refused(precision):
+    with pytest.raises(InputError, match="precision"):
+        realisations_for_precision(precision, 0.01)

@@ -22,8 +22,10 @@ from synthcorona.dimming.statistics import (
     likelihood_ratio,
     poisson_loglike,
     step_snr,
+    window_root,
     window_sigma,
     window_test,
+    window_test_size,
 )
 from synthcorona.errors import InputError
 
@@ -90,6 +92,41 @@ def test_window_sigma_keeps_precision_when_the_post_window_is_brighter(n1, n2):
     ref = stats.norm.ppf(stats.binom.sf(n2, n1 + n2, 0.5))   # scipy.stats, general reference
     sig, _ = window_sigma(np.array([n1]), np.array([n2]), 0.5)
     assert np.isfinite(sig[0]) and sig[0] == pytest.approx(ref, rel=1e-9)
+
+
+def _size_by_enumeration(mu1, mu2, alpha):
+    """P(p-value <= alpha) by summing over every (N1, N2), p-values from scipy.stats.binomtest (the detection rule:
+    reject when the p-value is <= alpha)."""
+    q0 = mu2 / (mu1 + mu2)
+    total = 0.0
+    for n1 in range(int(mu1 + 12 * math.sqrt(mu1) + 20)):
+        for n2 in range(int(mu2 + 12 * math.sqrt(mu2) + 20)):
+            if n1 + n2 and stats.binomtest(n2, n1 + n2, q0, alternative="less").pvalue <= alpha:
+                total += stats.poisson.pmf(n1, mu1) * stats.poisson.pmf(n2, mu2)
+    return total
+
+
+@pytest.mark.parametrize("mu1, mu2, alpha", [(20.0, 10.0, 0.05), (2.5, 2.5, 1 / 32), (6.0, 9.0, 0.01)])
+def test_exact_window_test_size_by_enumeration(mu1, mu2, alpha):
+    """The exact test's false-alarm probability equals the enumeration with scipy's binomtest p-values and the rule
+    p <= alpha; it never exceeds alpha. alpha = 1/32 is attained exactly (N = 5, N2 = 0, q0 = 1/2: p = 2^-5), so
+    the rule's '<=' matters there."""
+    size = window_test_size(mu1, mu2, alpha)
+    assert size == pytest.approx(_size_by_enumeration(mu1, mu2, alpha), rel=1e-9, abs=1e-15)
+    assert size <= alpha
+    assert window_sigma(5, 0, 0.5)[1] == pytest.approx(math.log(1 / 32), rel=1e-12)   # the attained p-value
+
+
+def test_window_root_approximates_the_exact_significance():
+    """The scan's fast significance (signed likelihood root, continuity-corrected) is within 0.1 sigma of the exact
+    one at tens of counts and more, in the range that matters for thresholds (|sigma| < 5)."""
+    rng = np.random.default_rng(3)
+    n1 = rng.poisson(300, 2000)
+    n2 = rng.poisson(80, 2000)
+    exact = window_sigma(n1, n2, 0.25)[0]
+    keep = np.abs(exact) < 5
+    assert np.max(np.abs(window_root(n1, n2, 0.25)[keep] - exact[keep])) < 0.1
+    assert window_root(0, 0, 0.3) == 0.0
 
 
 def test_step_snr_formula():

@@ -87,6 +87,25 @@ def test_variability_table_sets_the_red_noise(tmp_path):
     assert fi.observation.red_noise.tau_s == pytest.approx(7200.0, rel=1e-12)
 
 
+def test_onset_and_precision_keys(tmp_path):
+    """[montecarlo] onset (default "scan") and precision (default 0.02 when realisations is not given). Expected
+    realisations: the rule of synthcorona.dimming.sizes, (1/4 + alpha (1 - alpha) exp(z_alpha^2)) / precision^2 with
+    z_alpha from scipy.stats.norm; 1/4 / precision^2 (and at least 10 / alpha) with an exact threshold."""
+    import math
+
+    from scipy import stats
+
+    fi = _read(tmp_path, BASE)
+    assert fi.montecarlo.onset == "scan" and fi.montecarlo.precision is None and fi.montecarlo.realisations == 1000
+    fi = _read(tmp_path, BASE.replace("realisations = 1000", 'onset = "known"'))
+    assert fi.montecarlo.onset == "known" and fi.montecarlo.precision == 0.02
+    assert fi.montecarlo.realisations == 1000          # exact threshold: max(0.25 / 0.02^2 = 625, 10 / 0.01)
+    fi = _read(tmp_path, BASE.replace("realisations = 1000", "precision = 0.03"))
+    z = stats.norm.isf(0.01)
+    assert fi.montecarlo.realisations == math.ceil((0.25 + 0.01 * 0.99 * math.exp(z * z)) / 0.03 ** 2)
+    assert fi.montecarlo.precision == 0.03
+
+
 def test_mass_grid_forms(tmp_path):
     fi = _read(tmp_path, BASE.replace("seed = 3", 'seed = 3\nmass_grid = { min = "1e14 g", max = "1e18 g", points = 5 }'))
     np.testing.assert_allclose(fi.mass_grid.to_value(u.g), [1e14, 1e15, 1e16, 1e17, 1e18], rtol=1e-12)
@@ -184,6 +203,11 @@ MALFORMED = [
      "not a band"),
     ("bad statistic", ("seed = 3", 'seed = 3\nstatistic = "chi2"'), "[montecarlo] statistic", "one of"),
     ("too few realisations", ("realisations = 1000", "realisations = 200"), "[montecarlo] realisations", "1000"),
+    ("bad onset", ("seed = 3", 'seed = 3\nonset = "sometime"'), "[montecarlo] onset", "one of"),
+    ("realisations and precision", ("seed = 3", "seed = 3\nprecision = 0.02"), "[montecarlo] precision", "not both"),
+    ("precision out of range", ("realisations = 1000", "precision = 0.5"), "[montecarlo] precision", "valid range"),
+    ("precision too fine", ("realisations = 1000", "precision = 0.001"), "[montecarlo] precision",
+     "more than the 1000000"),
     ("bad abundance set", ('density = "2e9 cm-3"', 'density = "2e9 cm-3"\nabundances = "martian"'),
      "[corona] abundances", "known sets"),
     ("escape fraction", ('source_temperature = "2 MK"', 'source_temperature = "2 MK"\nescape_fraction = 1.5'),

@@ -27,7 +27,7 @@ def same_scenario():
     """tests/data/small_forecast.toml built directly with the API."""
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
-        return DimmingScenario(Star(5 * u.pc, nh=1e18 * u.cm ** -2),
+        return DimmingScenario(Star(2 * u.pc, nh=1e18 * u.cm ** -2),
                                Corona(GaussianDEM(6.301, 0.2, 1e51 * u.cm ** -3), density=2e9 * u.cm ** -3),
                                CME(3e17 * u.g, source_temperature=2 * u.MK), Flare(1e31 * u.erg), "sc-fe9",
                                Observation(8 * u.h, 300 * u.s, 2 * u.h, false_alarm=0.05))
@@ -95,8 +95,8 @@ def test_report_numbers_equal_the_scenario_api(small_forecast, same_scenario):
     sc = same_scenario
     # unabsorbed luminosity in the band limits = 4 pi d^2 x the unabsorbed band flux (synthesis.band_flux)
     lo, hi = float(ds["band_lo"].values[0]), float(ds["band_hi"].values[0])
-    f = band_flux(sc.corona.dem, [lo, hi] * u.keV, 5 * u.pc, table=sc.table, density=2e9 * u.cm ** -3)
-    lum = 4 * np.pi * (5 * PARSEC_CM) ** 2 * f.to_value(u.erg / u.s / u.cm ** 2)
+    f = band_flux(sc.corona.dem, [lo, hi] * u.keV, 2 * u.pc, table=sc.table, density=2e9 * u.cm ** -3)
+    lum = 4 * np.pi * (2 * PARSEC_CM) ** 2 * f.to_value(u.erg / u.s / u.cm ** 2)
     assert float(ds["quiescent_luminosity"].values[0]) == pytest.approx(lum, rel=1e-9)
     # absorption by N_H = 1e18 cm-2 only lowers the flux at the observer
     assert float(ds["quiescent_energy_flux"].values[0]) < f.to_value(u.erg / u.s / u.cm ** 2)
@@ -147,6 +147,23 @@ def test_flare_summary_is_in_the_forecast(small_forecast, same_scenario, tmp_pat
     with xr.open_dataset(path) as back:
         assert str(back["implied_class"].values) == str(ds["implied_class"].values)
         assert float(back["peak_flux_1_8A"]) == pytest.approx(float(ds["peak_flux_1_8A"]), rel=1e-12)
+
+
+def test_onset_is_recorded_and_known_onset_is_an_option(small_forecast, same_scenario):
+    """The forecast says how the onset was treated; onset="known" gives the scenario API's known-onset numbers
+    (exact threshold of the window test, no calibration error)."""
+    inputs, ds = small_forecast
+    assert ds.attrs["onset"] == "scan" and ds.attrs["threshold_method"] == "calibrated" and ds.attrs["n_trials"] > 1
+    assert np.all(ds["probability_error"].values >= ds["probability_error_calibration"].values)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        known = run_forecast(inputs, onset="known", show_realisations=0)
+        det = same_scenario.detection_probability(200, seed=3, onset="known")
+    assert known.attrs["onset"] == "known" and known.attrs["threshold_method"] == "exact"
+    np.testing.assert_array_equal(known["probability"].values, det["probability"].values)
+    assert np.all(known["probability_error_calibration"].values == 0.0)
+    with pytest.raises(InputError, match="onset='later' must be 'scan' or 'known'"):
+        run_forecast(inputs, onset="later", show_realisations=0)
 
 
 def test_unbracketed_minimum_mass_is_a_note_with_the_probabilities(tmp_path):
