@@ -7,7 +7,7 @@ second, without importing the numerical libraries:
   descriptions, band axis, energy range and named bands (a copy of what
   :mod:`synthcorona.instruments.designs` builds);
 * :data:`DEM_MODELS` -- the DEM models a ``[...dem]`` table of an input file may use, with the keys
-  each reads (a copy of :data:`synthcorona.io.toml.DEM_MODELS`);
+  each reads (the one definition; :mod:`synthcorona.io.toml` uses it);
 * :func:`abundance_sets` -- the named abundance sets and their sources, read from the JSON file that
   :mod:`synthcorona.abundances` reads;
 * :func:`read_manifest` -- the summary of an emissivity table written beside it by
@@ -58,9 +58,9 @@ GENERIC_INSTRUMENTS = {
 
 #: DEM models of a ``[...dem]`` table (``model = "..."``) and the keys each reads.
 DEM_MODELS = {
-    "isothermal": "temperature, emission_measure",
-    "gaussian": "peak_temperature, width_dex, emission_measure",
-    "power_law": "slope, peak_temperature, emission_measure, min_temperature (default 0.1 MK)",
+    "isothermal": "temperature, total_em",
+    "gaussian": "peak_logT, width_logT, total_em",
+    "power_law": "slope, peak_temperature, total_em, min_temperature (default 0.1 MK)",
     "tabulated": "temperature (list), dem (list, per kelvin) or file (ECSV/CSV with columns temperature, dem)",
     "components": "[[...component]] tables, each an isothermal or gaussian model",
 }

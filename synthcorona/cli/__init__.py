@@ -73,17 +73,29 @@ def main(argv=None) -> int:
 
 
 def _run(args) -> int:
-    """The subcommand of ``args``; a user mistake becomes one line and exit status 2."""
-    import astropy.units as u
+    """The subcommand of ``args``; a user mistake becomes one line and exit status 2.
 
+    astropy's ``UnitsError`` is caught only if astropy was imported by the subcommand (``list`` and
+    ``table-info`` never import it: they answer without numerical libraries).
+    """
     from ..errors import CliError, InputError
 
     try:
         return int(args.func(args) or 0)
-    except (CliError, InputError, u.UnitsError) as exc:
-        msg = " ".join(str(exc).split())
-        print(f"synthcorona {args.command}: error: {msg}", file=sys.stderr)
-        return 2
+    except (CliError, InputError) as exc:
+        return _user_mistake(args, exc)
+    except Exception as exc:
+        units = sys.modules.get("astropy.units")
+        if units is not None and isinstance(exc, units.UnitsError):
+            return _user_mistake(args, exc)
+        raise
+
+
+def _user_mistake(args, exc) -> int:
+    msg = " ".join(str(exc).split())
+    print(f"synthcorona {args.command}: error: {msg}", file=sys.stderr)
+    return 2
+
 
 if __name__ == "__main__":
     sys.exit(main())

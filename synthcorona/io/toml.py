@@ -23,6 +23,7 @@ from typing import Any
 import astropy.units as u
 import numpy as np
 
+from ..catalog import DEM_MODELS
 from ..errors import InputError, ScenarioError
 
 __all__ = ["Section", "load_toml", "read_input_text", "dem_from_section", "abundances_from_key",
@@ -348,13 +349,6 @@ def load_toml(path=None, *, text: str | None = None, name: str | None = None) ->
 
 #: DEM models of a ``[...dem]`` table: ``model = "<name>"`` -> keys it reads. The keys are the parameter names
 #: of the DEM classes of :mod:`synthcorona.dem` (one spelling in Python, files and the command line).
-DEM_MODELS = {
-    "isothermal": "temperature, total_em",
-    "gaussian": "peak_logT, width_logT, total_em",
-    "power_law": "slope, peak_temperature, total_em, min_temperature (default 0.1 MK)",
-    "tabulated": "temperature (list), dem (list, per kelvin) or file (ECSV/CSV with columns temperature, dem)",
-    "components": "[[...component]] tables, each an isothermal or gaussian model",
-}
 
 #: Keys of ``[...dem]`` tables that were renamed to the DEM classes' parameter names: old -> new. They are
 #: refused with a message naming the new key (by model; None: every model).

@@ -92,7 +92,7 @@ def test_first_page_states_what_a_proposal_needs(small_forecast):
     inputs, ds = small_forecast
     md = forecast_report(ds, inputs, fmt="md")
     first = md.split(PAGE_BREAK_MD)[0]
-    for text in ("**Result.**", "Pellwyn at 5 pc; N_H = 1 × 10¹⁸ cm⁻²",
+    for text in ("**Result.**", "Pellwyn at 2 pc; N_H = 1 × 10¹⁸ cm⁻²",
                  "Gaussian in log T peaking at 2 MK (log T = 6.30), 0.2 dex wide; total EM 1 × 10⁵¹ cm⁻³",
                  "| Instrument sc-fe9 | generic design sc-fe9; peak effective area ", "cm² at ",
                  "background 0 ct s⁻¹ per band", "| Monte Carlo | 200 realisations per probability, seed 3, window test |",

@@ -1,7 +1,7 @@
 """Figures of a forecast (synthcorona.plotting.forecast) for the small invented scenario tests/data/small_forecast.toml.
 
 Expected values are the Dataset's own numbers; the responses at the star's distance are the stored 1 pc
-responses times (1 pc / 5 pc)^2, and the EM per dex is the EM per node over the node's share of the log T
+responses times (1 pc / 2 pc)^2, and the EM per dex is the EM per node over the node's share of the log T
 grid (numpy.gradient of log T).
 """
 import matplotlib.colors as mcolors
@@ -30,7 +30,7 @@ def test_forecast_figures_names_and_captions(small_forecast):
         assert fname == f"{name}.png" and isinstance(fig, Figure) and caption.endswith(".")
     assert list(forecast_figures(ds)) == ["light_curves", "detection_vs_mass", "temperature_responses"]
     caption = figs["temperature_responses"][2]
-    assert "1 pc" not in caption and "5 pc behind N_H = 1 × 10¹⁸ cm⁻²" in caption
+    assert "1 pc" not in caption and "2 pc behind N_H = 1 × 10¹⁸ cm⁻²" in caption
     # the caption names the colours the figure uses
     assert "with the CME (red) and without it (blue)" in figs["light_curves"][2]
     assert "light red with the CME, light blue without" in figs["light_curves"][2]
@@ -59,7 +59,7 @@ def test_light_curves_colours_legend_and_realisations(small_forecast):
     assert len({red, blue, lred, lblue}) == 4
     # the legend belongs to the figure, outside the axes, never over the data
     assert ax.get_legend() is None and len(fig.legends) == 1
-    assert fig.get_suptitle() == "CME of 3 × 10¹⁷ g, Pellwyn at 5 pc"
+    assert fig.get_suptitle() == "CME of 3 × 10¹⁷ g, Pellwyn at 2 pc"
     assert ax.get_ylabel() == "sc-fe9 [ct/s]" and ax.get_xlabel() == "time [h]"
 
 
@@ -101,7 +101,7 @@ def test_detection_against_mass_title_legend_and_lines(small_forecast):
     np.testing.assert_allclose(curve.lines[0].get_ydata(), ds["probability_vs_mass"].values[:, 0])
     hlines = [ln.get_ydata()[0] for ln in ax.get_lines() if len(set(ln.get_ydata())) == 1 and len(ln.get_ydata()) == 2]
     assert ds.attrs["target_probability"] in hlines and ds.attrs["false_alarm"] in hlines
-    assert ax.get_title() == "Pellwyn at 5 pc; sc-fe9; 8 h exposure\n200 realisations per point, seed 3"
+    assert ax.get_title() == "Pellwyn at 2 pc; sc-fe9; 8 h exposure\n200 realisations per point, seed 3"
     (legend,) = fig.legends
     labels = [t.get_text() for t in legend.get_texts()]
     assert labels == ["sc-fe9", "target P = 0.5", "false-alarm probability 0.05", "scenario's mass 3 × 10¹⁷ g"]
@@ -128,7 +128,7 @@ def test_temperature_responses_at_the_star_with_em_per_dex(small_forecast):
     resp = ax.get_lines()[0]
     t = 10 ** ds["logT"].values
     np.testing.assert_allclose(resp.get_xdata(), t)
-    y = ds["temperature_response"].values[0] / 5.0 ** 2            # 1 pc -> 5 pc
+    y = ds["temperature_response"].values[0] / 2.0 ** 2            # 1 pc -> 2 pc
     np.testing.assert_allclose(resp.get_ydata(), np.where(y > 0, y, np.nan))
     assert ax.get_lines()[1].get_xdata()[0] == pytest.approx(2e6)      # the CME source temperature, 2 MK
     w = ds["dem_em_weights"].values
@@ -141,7 +141,7 @@ def test_temperature_responses_at_the_star_with_em_per_dex(small_forecast):
     assert lo == pytest.approx(t[0]) and hi == pytest.approx(t[-1])
     assert ax.get_xscale() == ax.get_yscale() == ax2.get_yscale() == "log"
     assert "per unit log T" in ax2.get_ylabel() and "node" not in ax2.get_ylabel()
-    assert ax.get_title() == "Pellwyn at 5 pc, N$_H$ = 1 × 10¹⁸ cm$^{-2}$"
+    assert ax.get_title() == "Pellwyn at 2 pc, N$_H$ = 1 × 10¹⁸ cm$^{-2}$"
 
 
 def test_effective_area_with_the_bands_used(small_forecast):
