@@ -526,10 +526,6 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
     DependencyError
         fiasco (0.8.2, Python >= 3.12) is not installed.
     """
-    locate.require_fiasco("building an emissivity table")
-    import fiasco
-    from tqdm import tqdm
-
     t_start = time.perf_counter()
     if settings is None:
         settings = BuildSettings(**kwargs)
@@ -540,6 +536,10 @@ def build_table(output, chianti=None, settings: BuildSettings | None = None, job
     if int(retries) < 0:
         raise InputError(f"retries={retries} is outside the valid range [0, inf)")
     scheduler = scheduler_from_env(scheduler)
+    locate.require_fiasco("building an emissivity table")     # after the argument checks: they need no fiasco
+    import fiasco
+    from tqdm import tqdm
+
     fiasco.log.setLevel("ERROR")
     src = locate.find_chianti(chianti)
     elements = settings.elements or default_elements(src.root)
