@@ -550,3 +550,54 @@ def radiative_loss(temperature, table=None, abundances="coronal", density=None, 
             raise InputError("temperature: at some requested temperatures the constant-pressure density leaves the table")
     lam = 10 ** np.interp(logt, prep.table.logT, np.log10(np.maximum(lam_nodes, 1e-300)))
     return u.Quantity(lam, u.erg * u.cm ** 3 / u.s)
+
+
+_ROMAN = ((10, "X"), (9, "IX"), (5, "V"), (4, "IV"), (1, "I"))
+
+
+def ion_label(z: int, stage: int) -> str:
+    """Spectroscopic label of an ion: element symbol and stage in Roman numerals (26, 9 -> "Fe IX")."""
+    from .abundances import ELEMENTS
+
+    n, roman = int(stage), ""
+    for value, numeral in _ROMAN:
+        while n >= value:
+            roman += numeral
+            n -= value
+    return f"{ELEMENTS[int(z) - 1]} {roman}"
+
+
+def strongest_lines(dem, wavelength_range, table=None, abundances="coronal", density=None, pressure=None,
+                    n: int = 10) -> xr.Dataset:
+    """The ``n`` lines of a DEM with the largest luminosity in a wavelength (or energy) range, brightest first.
+
+    Luminosity of a line = sum over the table's temperature nodes of EM_i x G(T_i) x A_el (erg s-1 into
+    4 pi for a volume DEM), the same line sum that :func:`synthesize` places in its bins.
+
+    Returns
+    -------
+    xarray.Dataset
+        Over ``line``: ``wavelength`` [Angstrom], ``ion`` (e.g. "Fe IX"), ``luminosity`` (units in attrs:
+        erg s-1 for a volume DEM, erg s-1 cm-2 sr-1 x 4 pi for a column DEM), with the table's provenance.
+    """
+    band = Band.coerce(wavelength_range, "wavelength_range")
+    if not isinstance(n, (int, np.integer)) or n < 1:
+        raise InputError(f"n={n!r} must be an integer >= 1", argument="n")
+    prep = prepare(table, abundances, density, pressure)
+    w, em_unit = dem_weights(dem, prep)
+    if w.ndim != 1:
+        raise InputError(f"strongest_lines takes one DEM; got a batch of shape {w.shape[:-1]}", argument="dem")
+    lo, hi = band.energy_kev
+    e = prep.line_energy_kev
+    sel = np.flatnonzero((e >= lo) & (e <= hi))
+    lum = prep.line_power[sel] @ w
+    order = sel[np.argsort(lum)[::-1][:n]]
+    values = np.sort(lum)[::-1][:n]
+    tab = prep.table
+    ions = [ion_label(z, s) for z, s in zip(tab.line_Z[order], tab.line_ion[order])]
+    attrs = prep.attrs()
+    attrs.update({"wavelength_range": band.range_text, "dem": repr(dem)})
+    return xr.Dataset({"wavelength": ("line", tab.line_wavelength[order], {"units": "Angstrom"}),
+                       "ion": ("line", np.array(ions, dtype=object)),
+                       "luminosity": ("line", values, {"units": (u.erg / u.s * em_unit * u.cm ** 3).to_string()})},
+                      attrs=attrs)

@@ -309,3 +309,27 @@ def test_spectrum_grid_checked_against_the_budget(table, monkeypatch):
         sc.synthesize(one, wavelength=grid, table=table)
     assert err.value.estimate == int(need) and err.value.budget == int(need) - 1
     assert err.value.argument == "wavelength"
+
+
+def test_strongest_lines_names_the_dominant_ion_of_a_band(table):
+    # Reference (from memory, textbook EUV spectroscopy, e.g. the 171 Angstrom passbands of solar EUV imagers):
+    # at T ~ 0.8 MK (log T = 5.9) the 165-180 Angstrom range is dominated by Fe IX 171.07 Angstrom, and the
+    # 190-200 Angstrom range at log T = 6.2 by Fe XII 193.5/195.1 Angstrom.
+    import synthcorona as sc
+    from synthcorona.synthesis import ion_label, strongest_lines
+
+    fe9 = strongest_lines(sc.IsothermalDEM(10 ** 5.9 * u.K, 1e50 * u.cm ** -3), "165-180 Angstrom", table=table,
+                          density=1e9 * u.cm ** -3, n=5)
+    assert str(fe9["ion"].values[0]) == "Fe IX" and float(fe9["wavelength"].values[0]) == pytest.approx(171.07, abs=0.02)
+    assert np.all(np.diff(fe9["luminosity"].values) <= 0) and fe9.sizes["line"] == 5
+    fe12 = strongest_lines(sc.IsothermalDEM(10 ** 6.2 * u.K, 1e50 * u.cm ** -3), "190-200 Angstrom", table=table,
+                           density=1e9 * u.cm ** -3, n=3)
+    assert str(fe12["ion"].values[0]) == "Fe XII"
+    # a line's luminosity is the same line sum synthesize puts in its bin: compare one isolated narrow bin
+    spec = sc.synthesize(sc.IsothermalDEM(10 ** 5.9 * u.K, 1e50 * u.cm ** -3), wavelength=[171.0, 171.2] * u.AA,
+                         table=table, density=1e9 * u.cm ** -3, edges=True)
+    in_bin = fe9["luminosity"].values[(fe9["wavelength"].values > 171.0) & (fe9["wavelength"].values < 171.2)].sum()
+    assert float(spec.values[0]) * 0.2 >= in_bin * (1 - 1e-9)        # bin total >= its lines (continuum adds)
+    # Roman numerals of the spectroscopic stage
+    assert [ion_label(26, s) for s in (1, 4, 9, 14, 17, 24, 26)] == ["Fe I", "Fe IV", "Fe IX", "Fe XIV", "Fe XVII",
+                                                                     "Fe XXIV", "Fe XXVI"]

@@ -106,7 +106,8 @@ def run(args) -> int:
         out.record(table=table_entry(table))
         written = write_table(res.fluxes, out.path("band_fluxes.ecsv"), csv=True)
         written.append(write_netcdf(res.spectrum, out.path("spectrum.nc")))
-        fig = plot_spectrum(res.spectrum, title=f"{dem!r} at {dist}" if dist is not None else f"{dem!r}: luminosity")
+        fig = plot_spectrum(res.spectrum, title=f"{dem!r} at {dist}" if dist is not None else f"{dem!r}: luminosity",
+                            lines=res.lines)
         if dist is None:
             fig.axes[0].set_ylabel(f"luminosity density [{res.spectrum.attrs.get('units', '')}]")
         written.append(write_figure(fig, out.path("spectrum.png"), dpi=120))

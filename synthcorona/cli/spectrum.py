@@ -52,7 +52,7 @@ def run(args) -> int:
             written += write_table(tab, out.path(f"{name}.ecsv"), csv=True)
         written.append(write_netcdf(res.spectrum, out.path("spectrum.nc")))
         if not args.no_figures:
-            written.append(write_figure(plot_spectrum(res.spectrum, title=inputs.title), out.path("spectrum.png"),
+            written.append(write_figure(plot_spectrum(res.spectrum, title=inputs.title, lines=res.lines), out.path("spectrum.png"),
                                         dpi=110))
     meta = res.meta
     print(f"{inputs.title}")

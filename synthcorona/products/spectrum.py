@@ -40,6 +40,7 @@ class SpectrumProducts(NamedTuple):
     rates: QTable | None     #: one row per instrument band: ``label``, ``instrument``, ``band``, ``count_rate`` [ct/s]
     spectrum: xr.DataArray   #: flux density at the observer on a wavelength grid (provenance in attrs)
     meta: dict               #: provenance shared by the three (DEM, distance, abundances, density, table)
+    lines: xr.Dataset | None = None   #: the strongest lines in the spectrum's range (:func:`strongest_lines`)
 
 
 def emission_density(inputs) -> tuple[u.Quantity, str]:
@@ -145,7 +146,7 @@ def scenario_spectrum(inputs, table=None) -> SpectrumProducts:
     (:func:`table_density`).
     """
     from ..emissivity import resolve_table
-    from ..synthesis import synthesize
+    from ..synthesis import strongest_lines, synthesize
 
     table = resolve_table(table)
     dem, abund, dist, nh = inputs.corona.dem, inputs.corona.abundances, inputs.star.distance, inputs.star.nh
@@ -166,7 +167,8 @@ def scenario_spectrum(inputs, table=None) -> SpectrumProducts:
     rates.meta.update(meta)
     rates.meta["note"] = "count rates with interstellar absorption of the [star] nh column"
     spec.attrs.update(meta)
-    return SpectrumProducts(fluxes, rates, spec, meta)
+    lines = strongest_lines(dem, inputs.output["spectrum_range"], table=table, abundances=abund, density=dens)
+    return SpectrumProducts(fluxes, rates, spec, meta, lines)
 
 
 def dem_spectrum(dem, distance, *, bands=DEFAULT_FLUX_BANDS, density=1e10 * u.cm ** -3, abundances="coronal",
@@ -193,7 +195,7 @@ def dem_spectrum(dem, distance, *, bands=DEFAULT_FLUX_BANDS, density=1e10 * u.cm
         Default: see :func:`synthcorona.emissivity.resolve_table`.
     """
     from ..emissivity import resolve_table
-    from ..synthesis import synthesize
+    from ..synthesis import strongest_lines, synthesize
 
     table = resolve_table(table)
     fluxes = band_table(dem, bands, distance, table, abundances, density)
@@ -202,4 +204,5 @@ def dem_spectrum(dem, distance, *, bands=DEFAULT_FLUX_BANDS, density=1e10 * u.cm
     meta = _meta(dem, distance, abundances, density, table)
     fluxes.meta.update(meta)
     spec.attrs.update(meta)
-    return SpectrumProducts(fluxes, None, spec, meta)
+    lines = strongest_lines(dem, wavelength_range, table=table, abundances=abundances, density=density)
+    return SpectrumProducts(fluxes, None, spec, meta, lines)

@@ -31,3 +31,19 @@ def test_one_log_line_with_six_decades_below_the_peak():
 def test_refuses_what_is_not_a_spectrum():
     with pytest.raises(InputError, match="spectrum"):
         plot_spectrum(np.ones(3) * u.erg)
+
+
+def test_strongest_lines_are_labelled_with_their_ion(table):
+    import astropy.units as u
+    import numpy as np
+
+    import synthcorona as sc
+    from synthcorona.plotting.spectrum import plot_spectrum
+    from synthcorona.synthesis import strongest_lines
+
+    dem = sc.IsothermalDEM(10 ** 5.9 * u.K, 1e50 * u.cm ** -3)
+    spec = sc.synthesize(dem, wavelength=np.arange(165, 180, 0.05) * u.AA, table=table, density=1e9 * u.cm ** -3)
+    lines = strongest_lines(dem, "165-180 Angstrom", table=table, density=1e9 * u.cm ** -3, n=4)
+    fig = plot_spectrum(spec, lines=lines)
+    labels = [t.get_text() for t in fig.axes[0].texts]
+    assert len(labels) == 4 and labels[0] == f"Fe IX {float(lines['wavelength'][0]):.2f}"
