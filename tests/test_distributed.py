@@ -58,7 +58,7 @@ def _settings():
 
 
 @pytest.fixture(scope="module")
-def serial_build(chianti_path, tmp_path_factory):
+def serial_build(fiasco_ready, chianti_path, tmp_path_factory):
     """The single-process build (jobs=1, no scheduler) of the three-ion table."""
     from synthcorona.atomic.builder import build_table
 
