@@ -269,11 +269,16 @@ def _plain_words(ds, inputs) -> list[str]:
         f"The dimming sets in over {number(float(ds['onset_time']))} s and recovers exponentially with an e-folding "
         f"time of {_hours(ds['recovery_time'])} as the loops refill; it stays above half its depth for "
         f"{_hours(ds['fwhm_duration'])}.",
-        "Only photon noise counts: no stellar variability, no instrument drifts.",
-        ("Detection compares the counts before the CME with those after it; the threshold gives the stated "
-         "false-alarm probability in simulations without a CME." if ds.attrs.get("statistic") != "likelihood" else
-         "Detection fits a dimming template to the light curve (Poisson likelihood ratio); the threshold gives the "
-         "stated false-alarm probability in simulations without a CME."),
+        ("Only photon noise counts: no stellar variability, no instrument drifts." if
+         str(ds.attrs.get("red_noise", "none")) in ("none", "") else
+         f"Noise: photon counts and stellar variability ({ds.attrs['red_noise']}); no instrument drifts."),
+        ("Detection compares the counts before the CME with those after it" if ds.attrs.get("statistic") != "likelihood"
+         else "Detection fits a dimming template to the light curve (Poisson likelihood ratio)")
+        + ("; the time of the CME is not assumed known: the test is repeated at every trial onset over the "
+           "observation, and the threshold gives the stated false-alarm probability per observation in simulations "
+           "without a CME." if ds.attrs.get("onset", "scan") == "scan" else
+           "; the time of the CME is taken as known (a triggered observation); the threshold gives the stated "
+           "false-alarm probability in simulations without a CME."),
     ]
     if inputs.flare is not None:
         words.insert(2, "The flare is one heated coronal loop whose extra emission adds to the light curve.")
