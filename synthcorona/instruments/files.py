@@ -5,22 +5,14 @@ Shared by the readers of :mod:`synthcorona.instruments.ogip` and
 """
 from __future__ import annotations
 
-import hashlib
 import os
 from pathlib import Path
 
+from ..catalog import file_sha256
 from ..errors import InstrumentFileError
 
 __all__ = ["file_sha256", "existing_file", "file_record"]
 
-
-def file_sha256(path) -> str:
-    """SHA-256 hex digest of a file's bytes (read in 1 MiB chunks)."""
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for chunk in iter(lambda: fh.read(1 << 20), b""):
-            h.update(chunk)
-    return h.hexdigest()
 
 
 def existing_file(path, what: str) -> Path:

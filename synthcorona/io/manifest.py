@@ -27,14 +27,15 @@ folder with :func:`verify_manifest`.
 from __future__ import annotations
 
 import datetime
-import hashlib
 import json
 import os
 import pathlib
 import shlex
 import socket
 
-__all__ = ["MANIFEST_NAME", "MANIFEST_FORMAT", "sha256_file", "file_entry", "input_entry", "table_entry",
+from ..catalog import file_sha256
+
+__all__ = ["MANIFEST_NAME", "MANIFEST_FORMAT", "file_entry", "input_entry", "table_entry",
            "utc_now", "build_manifest", "read_manifest", "listed_files", "verify_manifest"]
 
 #: File name of the manifest inside an output folder.
@@ -43,24 +44,16 @@ MANIFEST_NAME = "manifest.json"
 MANIFEST_FORMAT = 1
 
 
-def sha256_file(path) -> str:
-    """The SHA-256 of a file's bytes, as hex."""
-    h = hashlib.sha256()
-    with open(path, "rb") as f:
-        for block in iter(lambda: f.read(1 << 20), b""):
-            h.update(block)
-    return h.hexdigest()
-
 
 def file_entry(path, name: str) -> dict:
     """``{"name", "size", "sha256"}`` of the file ``path``, listed as ``name``."""
-    return {"name": name, "size": os.stat(path).st_size, "sha256": sha256_file(path)}
+    return {"name": name, "size": os.stat(path).st_size, "sha256": file_sha256(path)}
 
 
 def input_entry(path) -> dict:
     """``{"path", "size", "sha256"}`` of an input file (its absolute path)."""
     p = pathlib.Path(path).resolve()
-    return {"path": str(p), "size": p.stat().st_size, "sha256": sha256_file(p)}
+    return {"path": str(p), "size": p.stat().st_size, "sha256": file_sha256(p)}
 
 
 def table_entry(table) -> dict:
@@ -134,6 +127,6 @@ def verify_manifest(folder) -> list[str]:
         path = folder / f["name"]
         if not path.is_file():
             problems.append(f"{f['name']}: missing")
-        elif path.stat().st_size != f.get("size") or sha256_file(path) != f.get("sha256"):
+        elif path.stat().st_size != f.get("size") or file_sha256(path) != f.get("sha256"):
             problems.append(f"{f['name']}: differs from the manifest (size or SHA-256)")
     return problems
