@@ -1,4 +1,10 @@
-"""Tests of the fast light-curve model for fitting (synthcorona.dimming.lightcurve_model)."""
+"""Tests of the fast light-curve model for fitting (synthcorona.dimming.lightcurve_model).
+
+References: the model must reproduce DimmingScenario.light_curve (the full computation it is a fast copy of;
+a self-consistency check, 1e-9); the likelihood is the Poisson log-likelihood and the Cash (1979, ApJ 228, 939)
+statistic C = -2 ln L up to a data-only constant; the injected mass is recovered at the likelihood peak
+(injection-recovery, no outside value).
+"""
 import astropy.units as u
 import numpy as np
 import pytest

@@ -34,6 +34,8 @@ def test_refuses_what_is_not_a_spectrum():
 
 
 def test_strongest_lines_are_labelled_with_their_ion(table):
+    # Fe IX 171.07 Angstrom dominates 165-180 Angstrom at log T = 5.9 (from memory, standard EUV spectroscopy;
+    # the same check against the table is in tests/test_synthesis.py); here: the figure shows those labels
     import astropy.units as u
     import numpy as np
 
