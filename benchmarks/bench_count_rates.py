@@ -6,19 +6,19 @@ def _setup(quick):
     import synthcorona as sc
 
     n = 1000 if quick else 10_000
-    sxt, names = ten_band_softx()
-    return sc.load_emissivity(), sxt, names, n, gaussian_dems(n)
+    softx, names = ten_band_softx()
+    return sc.load_emissivity(), softx, names, n, gaussian_dems(n)
 
 
 def run(quick):
     import astropy.units as u
 
-    table, sxt, names, n, dem = _setup(quick)
-    rates = lambda: sxt.count_rate(dem, distance=10 * u.pc, band=names, table=table)  # noqa: E731
+    table, softx, names, n, dem = _setup(quick)
+    rates = lambda: softx.count_rate(dem, distance=10 * u.pc, band=names, table=table)  # noqa: E731
     rates()  # the responses, cached afterwards
     t, c, r = best_of(rates, n=7)
     w = dem.em_weights(table.logT).value
-    K = sxt.temperature_response(table=table, bands=names).values
+    K = softx.temperature_response(table=table, bands=names).values
     tw, _, _ = best_of(lambda: dem.em_weights(table.logT), n=7)
     tf, _, _ = best_of(lambda: (w @ K.T) * (1.0 / 10.0) ** 2, n=7)
     return {"seconds": t, "cpu": c, "arrays": {"rates": r.value[:200]},
@@ -29,11 +29,11 @@ def run(quick):
 def baseline(quick):
     import astropy.units as u
 
-    table, sxt, names, n, dem = _setup(quick)
+    table, softx, names, n, dem = _setup(quick)
     m = 50 if quick else 200
     one = single_dems(dem, m)
-    sxt.count_rate(one[0], distance=10 * u.pc, band=names, table=table)
-    t, c, r = best_of(lambda: [sxt.count_rate(d, distance=10 * u.pc, band=names, table=table) for d in one], n=1)
+    softx.count_rate(one[0], distance=10 * u.pc, band=names, table=table)
+    t, c, r = best_of(lambda: [softx.count_rate(d, distance=10 * u.pc, band=names, table=table) for d in one], n=1)
     return {"seconds": t * n / m, "cpu": c * n / m, "note": f"loop over {m} DEMs x {n / m:g}",
             "arrays": {"rates": [x.value for x in r]}}
 
@@ -41,8 +41,8 @@ def baseline(quick):
 def run_nh(quick):
     import astropy.units as u
 
-    table, sxt, names, n, dem = _setup(quick)
-    rates = lambda: sxt.count_rate(dem, distance=10 * u.pc, nh=1e20 * u.cm**-2, band=names, table=table)  # noqa: E731
+    table, softx, names, n, dem = _setup(quick)
+    rates = lambda: softx.count_rate(dem, distance=10 * u.pc, nh=1e20 * u.cm**-2, band=names, table=table)  # noqa: E731
     rates()  # the absorbed responses, cached afterwards
     t, c, _ = best_of(rates, n=5)
     return {"seconds": t, "cpu": c, "note": f"{n} DEMs x {len(names)} bands, N_H = 1e20 cm-2"}

@@ -27,12 +27,12 @@ def run(quick):
     from synthcorona.synthesis import prepare
 
     t0 = time.perf_counter()
-    sxt, names = ten_band_softx()
+    softx, names = ten_band_softx()
     t_build = time.perf_counter() - t0
-    t, c, K, table = _new_density_calls(sxt, names)
+    t, c, K, table = _new_density_calls(softx, names)
     dens = 10**9.5 * u.cm**-3
-    K = sxt.temperature_response(table=table, density=dens, bands=names)
-    t_warm, _, _ = best_of(lambda: sxt.temperature_response(table=table, density=dens, bands=names), n=5)
+    K = softx.temperature_response(table=table, density=dens, bands=names)
+    t_warm, _, _ = best_of(lambda: softx.temperature_response(table=table, density=dens, bands=names), n=5)
     t_prep, _, _ = best_of(lambda: prepare(table, "coronal", 10**9.33 * u.cm**-3), n=1)
     return {"seconds": t, "cpu": c, "arrays": {"K": np.asarray(K.values)},
             "note": f"shape {K.shape}; building sc-softx with 10 bands {t_build * 1e3:.0f} ms (once); "
@@ -46,8 +46,8 @@ def baseline(quick):
     import synthcorona as sc
 
     table = sc.load_emissivity()
-    sxt, names = ten_band_softx()
-    e = sxt.energy_lo.to_value(u.keV), sxt.energy_hi.to_value(u.keV)
+    softx, names = ten_band_softx()
+    e = softx.energy_lo.to_value(u.keV), softx.energy_hi.to_value(u.keV)
     edges = np.concatenate([e[0], e[1][-1:]]) * u.keV
     logT = table.logT[::8] if quick else table.logT
     em, d = 1e50 * u.cm**-3, 1 * u.pc
@@ -60,7 +60,7 @@ def baseline(quick):
             # ph cm-2 s-1 per bin (>= 0: bin integrals of the continuum can round to -1e-17)
             ph = np.maximum(np.asarray(s.values) * np.diff(edges.value), 0.0) * u.Unit("ph cm-2 s-1")
             for b, name in enumerate(names):
-                K[b, j] = float(sxt.count_rate_from_spectrum(ph, edges, band=name).value) / em.value
+                K[b, j] = float(softx.count_rate_from_spectrum(ph, edges, band=name).value) / em.value
         return K
     t, c, K = best_of(responses, n=1)
     scale = table.logT.size / logT.size
@@ -80,8 +80,8 @@ def agree(ours, base):
 def run_nh(quick):
     import astropy.units as u
 
-    sxt, names = ten_band_softx()
-    t, c, K, _ = _new_density_calls(sxt, names, nh=1e20 * u.cm**-2)
+    softx, names = ten_band_softx()
+    t, c, K, _ = _new_density_calls(softx, names, nh=1e20 * u.cm**-2)
     return {"seconds": t, "cpu": c, "note": f"shape {K.shape}, N_H = 1e20 cm-2"}
 
 

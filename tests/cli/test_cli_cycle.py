@@ -41,8 +41,8 @@ def test_cli_end_to_end_matches_api(tmp_path, capsys):
     f0 = band_flux(dem0, [0.1, 2.4] * u.keV, 3 * u.pc, density=2e9 * u.cm ** -3).to_value(FLUX)
     assert ds["flux"].sel(band="0.1-2.4 keV").values[0] == pytest.approx(f0, rel=1e-9)
     assert per["flux[0.1-2.4 keV]"][0].to_value(FLUX) == pytest.approx(f0, rel=1e-9)
-    sxt = load_generic("sc-softx")
-    r0 = sxt.count_rate(dem0, distance=3 * u.pc, nh=3e17 * u.cm ** -2, band="broad", density=2e9 * u.cm ** -3).value
+    softx = load_generic("sc-softx")
+    r0 = softx.count_rate(dem0, distance=3 * u.pc, nh=3e17 * u.cm ** -2, band="broad", density=2e9 * u.cm ** -3).value
     assert ds["count_rate"].sel(channel="sc-softx:broad").values[0] == pytest.approx(r0, rel=1e-9)
     assert per["count_rate[sc-softx:broad]"][0].to_value(u.ct / u.s) == pytest.approx(r0, rel=1e-9)
     # The 'early rise' phase is a measured flux: reproduced.
